@@ -1,0 +1,113 @@
+"""Candidates: list, get, explicit promotion, withdrawal, comments."""
+
+from __future__ import annotations
+
+from flask import Blueprint, Response
+
+from confirm_service.api.common import (
+    READ_ROLES,
+    current_actor,
+    database,
+    json_response,
+    page_of,
+    parse_body,
+    parse_query,
+    roles,
+)
+from confirm_service.api.spec import documented
+from confirm_service.schemas.candidates import (
+    CandidateOut,
+    CandidateSummary,
+    CommentIn,
+    CommentOut,
+    PromoteIn,
+    WithdrawIn,
+)
+from confirm_service.schemas.common import Page
+from confirm_service.schemas.queries import CandidateQuery
+from confirm_service.services import candidate_views as views
+from confirm_service.services import candidates as service
+
+bp = Blueprint("candidates", __name__, url_prefix="/api/v1/candidates")
+
+
+@bp.get("")
+@documented(
+    "List candidates", query=CandidateQuery, response=Page[CandidateSummary], tag="candidates"
+)
+@roles(*READ_ROLES)
+def list_candidates() -> Response:
+    query = parse_query(CandidateQuery)
+    with database().read() as session:
+        rows = views.list_candidates(session, query, query.limit + 1)
+        return json_response(
+            page_of(rows, query.limit, lambda c: views.summary(session, c).model_dump(mode="json"))
+        )
+
+
+@bp.get("/<int:candidate_id>")
+@documented(
+    "A candidate with its checks, linked detections and history",
+    response=CandidateOut,
+    error_statuses=(401, 403, 404),
+    tag="candidates",
+)
+@roles(*READ_ROLES)
+def get_candidate(candidate_id: int) -> Response:
+    with database().read() as session:
+        return json_response(views.detail(session, candidate_id))
+
+
+@bp.post("")
+@documented(
+    "Promote a detection to a candidate",
+    request=PromoteIn,
+    response=CandidateOut,
+    status=201,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator", "pipeline")
+def promote() -> Response:
+    data = parse_body(PromoteIn)
+    with database().write() as session:
+        candidate = service.promote_detection(
+            session, current_actor(), data.detection_id, data.note
+        )
+        body = views.detail(session, candidate.id)
+    return json_response(body, 201)
+
+
+@bp.post("/<int:candidate_id>/withdraw")
+@documented(
+    "Withdraw a candidate (a person closes it)",
+    request=WithdrawIn,
+    response=CandidateOut,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator")
+def withdraw(candidate_id: int) -> Response:
+    data = parse_body(WithdrawIn)
+    with database().write() as session:
+        service.withdraw(session, current_actor(), candidate_id, data.rationale)
+        body = views.detail(session, candidate_id)
+    return json_response(body)
+
+
+@bp.post("/<int:candidate_id>/comments")
+@documented(
+    "Comment on a candidate",
+    request=CommentIn,
+    response=CommentOut,
+    status=201,
+    error_statuses=(401, 403, 404, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator", "site")
+def comment(candidate_id: int) -> Response:
+    data = parse_body(CommentIn)
+    with database().write() as session:
+        row = service.add_comment(session, current_actor(), candidate_id, data.text)
+        body = CommentOut(id=row.id, author=row.author, role=row.role, text=row.text, at=row.at)
+    return json_response(body, 201)

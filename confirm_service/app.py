@@ -1,0 +1,40 @@
+"""The application factory."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from flask import Flask, request
+
+from confirm_service.api.common import authenticate_request
+from confirm_service.api.problems import install_problem_handlers
+from confirm_service.config import Settings, load_settings
+from confirm_service.db import Database
+
+
+def _blueprints() -> list[Any]:
+    from confirm_service.api import candidates, meta, observations, physics, sites, targets
+
+    return [meta.bp, sites.bp, targets.bp, observations.bp, candidates.bp, physics.bp]
+
+
+def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:
+    """Build the Flask app. ``config`` is a :class:`Settings` or overrides of its fields."""
+    settings = config if isinstance(config, Settings) else load_settings(config)
+    app = Flask(__name__, instance_path=str(settings.instance_path.resolve()))
+    app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
+    app.json.sort_keys = False  # type: ignore[attr-defined]
+    database = Database(settings.database_url)
+    app.extensions["confirm.settings"] = settings
+    app.extensions["confirm.db"] = database
+    install_problem_handlers(app)
+
+    @app.before_request
+    def _authenticate() -> Any:
+        if request.path.startswith("/api/"):
+            return authenticate_request()
+        return None
+
+    for blueprint in _blueprints():
+        app.register_blueprint(blueprint)
+    return app

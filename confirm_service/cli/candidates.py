@@ -1,0 +1,3 @@
+"""Commands: candidates."""
+
+from confirm_service.cli import main  # noqa: F401

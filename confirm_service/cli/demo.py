@@ -1,0 +1,3 @@
+"""Commands: demo."""
+
+from confirm_service.cli import main  # noqa: F401

@@ -1,0 +1,3 @@
+"""Commands: exchange."""
+
+from confirm_service.cli import main  # noqa: F401

@@ -1,0 +1,3 @@
+"""Commands: protocol."""
+
+from confirm_service.cli import main  # noqa: F401

@@ -1,0 +1,39 @@
+"""SQLAlchemy tables, one module per area."""
+
+from confirm_service.models.audit import AuditCheckpoint, AuditEntry, AuditHead
+from confirm_service.models.auth import ROLES, ApiToken, IdempotencyRecord
+from confirm_service.models.base import Base
+from confirm_service.models.candidates import (
+    Candidate,
+    CandidateDetection,
+    CheckResult,
+    Comment,
+    ProtocolRecord,
+    SignOff,
+    StageTransition,
+)
+from confirm_service.models.followups import FollowUpReport, FollowUpRequest
+from confirm_service.models.log import Detection, Observation, Site, Target
+
+__all__ = [
+    "ROLES",
+    "ApiToken",
+    "AuditCheckpoint",
+    "AuditEntry",
+    "AuditHead",
+    "Base",
+    "Candidate",
+    "CandidateDetection",
+    "CheckResult",
+    "Comment",
+    "Detection",
+    "FollowUpReport",
+    "FollowUpRequest",
+    "IdempotencyRecord",
+    "Observation",
+    "ProtocolRecord",
+    "SignOff",
+    "Site",
+    "StageTransition",
+    "Target",
+]

@@ -1,0 +1,111 @@
+"""Candidate responses and the coordinator's requests about candidates."""
+
+from __future__ import annotations
+
+from typing import Annotated, Any
+
+from pydantic import BaseModel, Field
+
+from confirm_service.schemas.common import StrictModel, UtcIso
+
+Text = Annotated[str, Field(min_length=1, max_length=10_000)]
+
+
+class ProtocolRef(BaseModel):
+    name: str
+    sha256: str
+
+
+class CheckOut(BaseModel):
+    kind: str
+    outcome: str
+    reason: str
+    measured: float | None
+    expected: float | None
+    tolerance: float | None
+    unit: str | None
+    details: dict[str, Any] = {}
+    evaluated_at: UtcIso
+
+
+class LinkedDetection(BaseModel):
+    id: int
+    observation: int
+    site: str
+    frequency_hz: float
+    drift_hz_s: float
+    snr: float
+    on_source: bool
+    start: UtcIso
+    role: str
+
+
+class TransitionOut(BaseModel):
+    from_stage: str | None
+    to_stage: str
+    from_state: str | None
+    to_state: str
+    reason: str
+    reason_class: str | None
+    actor: str
+    at: UtcIso
+
+
+class CommentOut(BaseModel):
+    id: int
+    author: str
+    role: str
+    text: str
+    at: UtcIso
+
+
+class SignOffOut(BaseModel):
+    id: int
+    stage: str
+    role: str
+    person: str
+    approve: bool
+    rationale: str
+    at: UtcIso
+
+
+class CandidateSummary(BaseModel):
+    id: int
+    state: str
+    stage: str
+    protocol: ProtocolRef
+    target: str | None
+    site: str
+    reference_detection: int
+    reference_time: UtcIso
+    barycentric_frequency_hz: float
+    residual_drift_hz_s: float
+    held: bool
+    hold_reason: str | None
+    reason_class: str | None
+    reason: str | None
+    origin: str
+    created_at: UtcIso
+    updated_at: UtcIso
+
+
+class CandidateOut(CandidateSummary):
+    checks: list[CheckOut]
+    detections: list[LinkedDetection]
+    history: list[TransitionOut]
+    comments: list[CommentOut] = []
+    signoffs: list[SignOffOut] = []
+    caution: str
+
+
+class PromoteIn(StrictModel):
+    detection_id: Annotated[int, Field(ge=1)]
+    note: Text | None = None
+
+
+class WithdrawIn(StrictModel):
+    rationale: Text
+
+
+class CommentIn(StrictModel):
+    text: Text

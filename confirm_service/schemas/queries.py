@@ -1,0 +1,34 @@
+"""Query-string models of the list endpoints."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+from pydantic import AwareDatetime, Field
+
+from confirm_service.schemas.common import StrictModel
+
+Limit = Annotated[int, Field(ge=1, le=1000, description="items per page, at most 1,000")]
+After = Annotated[int, Field(ge=0, description="cursor: return items with id greater than this")]
+
+
+class ListQuery(StrictModel):
+    limit: Limit = 100
+    after: After = 0
+
+
+class ObservationQuery(ListQuery):
+    site: str | None = None
+    target: str | None = None
+    start_from: AwareDatetime | None = Field(None, description="start >= this (ISO 8601, offset)")
+    start_to: AwareDatetime | None = Field(None, description="start < this (ISO 8601, offset)")
+    cadence: str | None = None
+
+
+class CandidateQuery(ListQuery):
+    state: str | None = None
+    stage: str | None = None
+    target: str | None = None
+    site: str | None = None
+    check_kind: str | None = None
+    check_outcome: str | None = None

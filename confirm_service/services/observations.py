@@ -1,0 +1,286 @@
+"""Observations (scans) and the bulk ingest of their detections: the pipeline's hot path."""
+
+from __future__ import annotations
+
+import hashlib
+import math
+from collections.abc import Sequence
+from datetime import datetime, timedelta
+from typing import Any
+
+from sqlalchemy import func, select, text
+from sqlalchemy.orm import Session
+
+from confirm_service.audit.log import record
+from confirm_service.models import Detection, Observation, Site, Target
+from confirm_service.schemas.log import DETECTION_DEFAULTS, DetectionIn, ObservationIn
+from confirm_service.services.actor import Actor
+from confirm_service.services.errors import Invalid, NotFound, TooLarge
+from confirm_service.services.sites import site_by_code, target_by_name
+from confirm_service.timeutil import utc_now
+
+DETECTION_COLUMNS = (
+    "id",
+    "observation_id",
+    "frequency_hz",
+    "drift_hz_s",
+    "snr",
+    "time_offset_s",
+    "bandwidth_hz",
+    "beam",
+    "flagged_candidate",
+)
+
+
+def observation_end(observation: Observation) -> datetime:
+    return observation.start + timedelta(seconds=observation.duration_s)
+
+
+def refuse_future_start(start: datetime, now: datetime, skew_s: float) -> None:
+    if start > now + timedelta(seconds=skew_s):
+        raise Invalid(
+            "observation starts in the future",
+            [("start", f"is later than now plus the {skew_s:g} s clock-skew allowance")],
+        )
+
+
+def detection_errors(
+    rows: Sequence[DetectionIn], observation: Observation, prefix: str = "detections"
+) -> list[tuple[str, str]]:
+    """Rows that fall outside the scan's band or time span, each named by index and field."""
+    low, high = observation.frequency_min_hz, observation.frequency_max_hz
+    duration = observation.duration_s
+    errors: list[tuple[str, str]] = []
+    for index, row in enumerate(rows):
+        frequency = row["frequency_hz"]
+        if not low <= frequency <= high:
+            errors.append(
+                (
+                    f"{prefix}[{index}].frequency_hz",
+                    f"{frequency!r} Hz is outside the scan's band {low!r}–{high!r} Hz",
+                )
+            )
+        offset = row.get("time_offset_s", 0.0)
+        if offset > duration:
+            errors.append(
+                (
+                    f"{prefix}[{index}].time_offset_s",
+                    f"{offset!r} s is beyond the scan's duration {duration!r} s",
+                )
+            )
+    return errors
+
+
+def _allocate_detection_ids(session: Session, count: int) -> list[int]:
+    """Ids for ``count`` new detections, reserved inside the current write transaction."""
+    if count == 0:
+        return []
+    if session.get_bind().dialect.name == "postgresql":
+        statement = text(
+            "SELECT nextval(pg_get_serial_sequence('detections', 'id')) FROM generate_series(1, :n)"
+        )
+        return [int(v) for v in session.execute(statement, {"n": count}).scalars()]
+    highest = session.execute(select(func.coalesce(func.max(Detection.id), 0))).scalar_one()
+    return list(range(highest + 1, highest + 1 + count))
+
+
+def _insert_detection_rows(session: Session, rows: list[tuple[Any, ...]]) -> None:
+    """Positional executemany through the DBAPI: the fastest insert SQLAlchemy offers."""
+    connection = session.connection()
+    marker = "%s" if connection.dialect.paramstyle in ("format", "pyformat") else "?"
+    placeholders = ", ".join([marker] * len(DETECTION_COLUMNS))
+    statement = f"INSERT INTO detections ({', '.join(DETECTION_COLUMNS)}) VALUES ({placeholders})"
+    connection.exec_driver_sql(statement, rows)
+
+
+def insert_detections(
+    session: Session, observation: Observation, rows: Sequence[DetectionIn]
+) -> list[int]:
+    """Insert already validated rows for ``observation``; return their ids in order."""
+    ids = _allocate_detection_ids(session, len(rows))
+    defaults = DETECTION_DEFAULTS
+    observation_id = observation.id
+    tuples = [
+        (
+            new_id,
+            observation_id,
+            row["frequency_hz"],
+            row["drift_hz_s"],
+            row["snr"],
+            row.get("time_offset_s", defaults["time_offset_s"]),
+            row.get("bandwidth_hz"),
+            row.get("beam"),
+            bool(row.get("candidate", False)),
+        )
+        for new_id, row in zip(ids, rows, strict=True)
+    ]
+    if tuples:
+        _insert_detection_rows(session, tuples)
+        observation.detection_count = (observation.detection_count or 0) + len(tuples)
+    return ids
+
+
+def _rows_digest(rows: Sequence[DetectionIn]) -> str:
+    """SHA-256 over the rows' values in a fixed, documented order (repr of each float)."""
+    digest = hashlib.sha256()
+    for row in rows:
+        line = "|".join(
+            repr(row.get(key, DETECTION_DEFAULTS.get(key)))
+            for key in ("frequency_hz", "drift_hz_s", "snr", "time_offset_s", "bandwidth_hz")
+        )
+        digest.update(line.encode() + b"|" + repr(row.get("beam")).encode() + b"\n")
+    return digest.hexdigest()
+
+
+def _trigger_candidates(
+    session: Session,
+    actor: Actor,
+    observation: Observation,
+    rows: Sequence[DetectionIn],
+    ids: list[int],
+) -> list[int]:
+    from confirm_service.services import candidates
+
+    return candidates.after_ingest(session, actor, observation, rows, ids)
+
+
+def ingest_detections(
+    session: Session,
+    actor: Actor,
+    observation_id: int,
+    rows: Sequence[DetectionIn],
+    max_batch: int,
+) -> tuple[list[int], list[int]]:
+    """All-or-nothing bulk ingest. Returns (detection ids, ids of candidates it created)."""
+    if len(rows) > max_batch:
+        raise TooLarge(
+            f"{len(rows)} detections in one batch; the limit is {max_batch}",
+            [("detections", f"at most {max_batch} per request")],
+        )
+    observation = session.get(Observation, observation_id, with_for_update=False)
+    if observation is None:
+        raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
+    errors = detection_errors(rows, observation)
+    if errors:
+        raise Invalid(f"{len(errors)} detection field(s) refused; nothing was written", errors)
+    ids = insert_detections(session, observation, rows)
+    record(
+        session,
+        actor,
+        "detections.ingested",
+        f"observation:{observation.id}",
+        {
+            "count": len(ids),
+            "first_id": ids[0] if ids else None,
+            "last_id": ids[-1] if ids else None,
+            "rows_sha256": _rows_digest(rows),
+        },
+    )
+    candidate_ids = _trigger_candidates(session, actor, observation, rows, ids)
+    return ids, candidate_ids
+
+
+def _finite_or_invalid(value: float, field: str) -> float:
+    if not math.isfinite(value):
+        raise Invalid("not a finite number", [(field, "must be a finite number")])
+    return value
+
+
+def create_observation(
+    session: Session, actor: Actor, data: ObservationIn, clock_skew_s: float, max_batch: int
+) -> tuple[Observation, list[int], list[int]]:
+    """Create a scan and, optionally, its inline detections, in one transaction."""
+    refuse_future_start(data.start, utc_now(), clock_skew_s)
+    if data.target is None and (data.pointing_ra_deg is None or data.pointing_dec_deg is None):
+        raise Invalid(
+            "no sky position", [("target", "give a target or pointing_ra_deg and pointing_dec_deg")]
+        )
+    site: Site = site_by_code(session, data.site)
+    target: Target | None = target_by_name(session, data.target) if data.target else None
+    ra = data.pointing_ra_deg if data.pointing_ra_deg is not None else target.ra_deg  # type: ignore[union-attr]
+    dec = data.pointing_dec_deg if data.pointing_dec_deg is not None else target.dec_deg  # type: ignore[union-attr]
+    if len(data.detections) > max_batch:
+        raise TooLarge(
+            f"{len(data.detections)} inline detections; the limit is {max_batch}",
+            [("detections", f"at most {max_batch} per request")],
+        )
+    observation = Observation(
+        site_id=site.id,
+        target_id=target.id if target else None,
+        pointing_ra_deg=_finite_or_invalid(ra, "pointing_ra_deg"),
+        pointing_dec_deg=_finite_or_invalid(dec, "pointing_dec_deg"),
+        start=data.start,
+        duration_s=data.duration_s,
+        frequency_min_hz=data.frequency_min_hz,
+        frequency_max_hz=data.frequency_max_hz,
+        channel_width_hz=data.channel_width_hz,
+        time_resolution_s=data.time_resolution_s,
+        on_source=data.on_source,
+        beam=data.beam,
+        cadence=data.cadence,
+        pipeline_run=data.pipeline_run,
+        detection_count=0,
+    )
+    observation.site = site
+    observation.target = target
+    errors = detection_errors(data.detections, observation)
+    if errors:
+        raise Invalid(f"{len(errors)} detection field(s) refused; nothing was written", errors)
+    session.add(observation)
+    session.flush()
+    payload = data.model_dump(mode="json", exclude={"detections"})
+    payload["id"] = observation.id
+    payload["detections_sha256"] = _rows_digest(data.detections)
+    payload["detection_count"] = len(data.detections)
+    record(session, actor, "observation.created", f"observation:{observation.id}", payload)
+    ids = insert_detections(session, observation, data.detections)
+    candidate_ids = _trigger_candidates(session, actor, observation, data.detections, ids)
+    from confirm_service.services import candidates
+
+    candidate_ids += candidates.after_observation(session, actor, observation)
+    return observation, ids, sorted(set(candidate_ids))
+
+
+def get_observation(session: Session, observation_id: int) -> Observation:
+    observation = session.get(Observation, observation_id)
+    if observation is None:
+        raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
+    return observation
+
+
+def list_observations(
+    session: Session,
+    after_id: int,
+    limit: int,
+    site: str | None = None,
+    target: str | None = None,
+    start_from: datetime | None = None,
+    start_to: datetime | None = None,
+    cadence: str | None = None,
+) -> list[Observation]:
+    query = select(Observation).where(Observation.id > after_id)
+    if site is not None:
+        query = query.join(Site, Site.id == Observation.site_id).where(Site.code == site)
+    if target is not None:
+        query = query.join(Target, Target.id == Observation.target_id).where(Target.name == target)
+    if start_from is not None:
+        query = query.where(Observation.start >= start_from)
+    if start_to is not None:
+        query = query.where(Observation.start < start_to)
+    if cadence is not None:
+        query = query.where(Observation.cadence == cadence)
+    query = query.order_by(Observation.id).limit(limit)
+    return list(session.execute(query).unique().scalars())
+
+
+def list_detections(
+    session: Session, observation_id: int, after_id: int, limit: int
+) -> list[Detection]:
+    get_observation(session, observation_id)
+    query = (
+        select(Detection)
+        .where(Detection.observation_id == observation_id, Detection.id > after_id)
+        .order_by(Detection.id)
+        .limit(limit)
+    )
+    return list(session.execute(query).scalars())

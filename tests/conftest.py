@@ -1,0 +1,125 @@
+"""Shared fixtures: a migrated database on each backend, the app, tokens for every role.
+
+SQLite always; PostgreSQL too when ``CONFIRM_TEST_POSTGRES_URL`` is set. Each xdist worker gets
+its own PostgreSQL database; each test starts from empty tables.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import pytest
+from sqlalchemy import create_engine, text
+from sqlalchemy.engine import make_url
+
+from confirm_service.db import upgrade_database
+
+POSTGRES_URL = os.environ.get("CONFIRM_TEST_POSTGRES_URL")
+BACKENDS = ["sqlite"] + (["postgresql"] if POSTGRES_URL else [])
+ROLES = ("pipeline", "site", "coordinator", "viewer", "admin")
+
+
+def pytest_sessionstart(session: pytest.Session) -> None:
+    if os.environ.get("CONFIRM_REQUIRE_POSTGRES") == "1" and not POSTGRES_URL:
+        pytest.exit("CONFIRM_REQUIRE_POSTGRES=1 but CONFIRM_TEST_POSTGRES_URL is not set", 3)
+
+
+def _worker() -> str:
+    return os.environ.get("PYTEST_XDIST_WORKER", "main")
+
+
+def _postgres_worker_url() -> str:
+    assert POSTGRES_URL
+    base = make_url(POSTGRES_URL)
+    if base.drivername == "postgresql":
+        base = base.set(drivername="postgresql+psycopg")
+    name = f"{base.database}_confirm_{_worker()}"
+    admin = create_engine(base, isolation_level="AUTOCOMMIT")
+    with admin.connect() as connection:
+        connection.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+        connection.execute(text(f'CREATE DATABASE "{name}"'))
+    admin.dispose()
+    return base.set(database=name).render_as_string(hide_password=False)
+
+
+@pytest.fixture(scope="session", params=BACKENDS)
+def backend(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> str:
+    """A migrated template database URL for the backend under test."""
+    if request.param == "sqlite":
+        template = tmp_path_factory.mktemp("sqlite-template") / "template.db"
+        upgrade_database(f"sqlite:///{template}")
+        return f"sqlite:///{template}"
+    url = _postgres_worker_url()
+    upgrade_database(url)
+    return url
+
+
+def _truncate_postgres(url: str) -> None:
+    engine = create_engine(url)
+    with engine.begin() as connection:
+        tables = connection.execute(
+            text(
+                "SELECT tablename FROM pg_tables WHERE schemaname = 'public' "
+                "AND tablename <> 'alembic_version'"
+            )
+        ).scalars()
+        names = ", ".join(f'"{t}"' for t in tables)
+        connection.execute(text(f"TRUNCATE {names} RESTART IDENTITY CASCADE"))
+        connection.execute(text("INSERT INTO audit_head (id, size) VALUES (1, 0)"))
+    engine.dispose()
+
+
+@pytest.fixture
+def database_url(backend: str, tmp_path: Path) -> str:
+    """An empty, migrated database for one test."""
+    if backend.startswith("sqlite"):
+        copy = tmp_path / "confirm.db"
+        shutil.copyfile(make_url(backend).database, copy)  # type: ignore[arg-type]
+        return f"sqlite:///{copy}"
+    _truncate_postgres(backend)
+    return backend
+
+
+@pytest.fixture
+def app(database_url: str, tmp_path: Path) -> Iterator[Any]:
+    from confirm_service.app import create_app
+
+    application = create_app({"database_url": database_url, "instance_path": tmp_path / "instance"})
+    application.config["TESTING"] = True
+    yield application
+    application.extensions["confirm.db"].dispose()
+
+
+@pytest.fixture
+def db(app: Any) -> Any:
+    return app.extensions["confirm.db"]
+
+
+@pytest.fixture
+def client(app: Any) -> Any:
+    return app.test_client()
+
+
+@pytest.fixture
+def tokens(db: Any) -> dict[str, str]:
+    """A live token secret for every role."""
+    from confirm_service.services.actor import SYSTEM
+    from confirm_service.services.tokens import create_token
+
+    secrets = {}
+    with db.write() as session:
+        for role in ROLES:
+            _, secrets[role] = create_token(session, SYSTEM, f"test-{role}", role)
+    return secrets
+
+
+@pytest.fixture
+def auth(tokens: dict[str, str]) -> Any:
+    def headers(role: str, **extra: str) -> dict[str, str]:
+        return {"Authorization": f"Bearer {tokens[role]}", **extra}
+
+    return headers
