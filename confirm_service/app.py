@@ -10,12 +10,21 @@ from confirm_service.api.common import authenticate_request
 from confirm_service.api.problems import install_problem_handlers
 from confirm_service.config import Settings, load_settings
 from confirm_service.db import Database
+from confirm_service.services import protocols, runtime
 
 
 def _blueprints() -> list[Any]:
-    from confirm_service.api import candidates, meta, observations, physics, sites, targets
+    from confirm_service.api import (
+        audit,
+        candidates,
+        meta,
+        observations,
+        physics,
+        sites,
+        targets,
+    )
 
-    return [meta.bp, sites.bp, targets.bp, observations.bp, candidates.bp, physics.bp]
+    return [meta.bp, sites.bp, targets.bp, observations.bp, candidates.bp, physics.bp, audit.bp]
 
 
 def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:
@@ -24,6 +33,8 @@ def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:
     app = Flask(__name__, instance_path=str(settings.instance_path.resolve()))
     app.config["MAX_CONTENT_LENGTH"] = settings.max_body_bytes
     app.json.sort_keys = False  # type: ignore[attr-defined]
+    runtime.configure(settings)
+    protocols.load_configured(settings.protocol_file)  # an invalid protocol never serves
     database = Database(settings.database_url)
     app.extensions["confirm.settings"] = settings
     app.extensions["confirm.db"] = database

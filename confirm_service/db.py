@@ -30,6 +30,7 @@ def _install_sqlite_pragmas(engine: Engine) -> None:
         cursor.execute("PRAGMA foreign_keys=ON")
         cursor.execute("PRAGMA busy_timeout=30000")
         cursor.execute("PRAGMA synchronous=NORMAL")
+        cursor.execute("PRAGMA cache_size=-65536")  # 64 MiB of page cache per connection
         cursor.close()
 
     @event.listens_for(engine, "begin")

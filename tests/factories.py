@@ -47,8 +47,9 @@ def observation(**overrides: Any) -> dict[str, Any]:
 
 
 def detections(count: int, base_hz: float = 1.42e9) -> list[dict[str, Any]]:
+    """Faint hits (SNR below every shipped protocol's intake threshold): log traffic only."""
     return [
-        {"frequency_hz": base_hz + 37.5 * i, "drift_hz_s": -0.05, "snr": 8.0 + i % 5}
+        {"frequency_hz": base_hz + 37.5 * i, "drift_hz_s": -0.05, "snr": 5.0 + i % 4}
         for i in range(count)
     ]
 

@@ -20,7 +20,11 @@ from confirm_service.schemas.candidates import (
     CandidateSummary,
     CommentIn,
     CommentOut,
+    DecisionIn,
+    HoldReleaseIn,
     PromoteIn,
+    SignOffIn,
+    SignOffOut,
     WithdrawIn,
 )
 from confirm_service.schemas.common import Page
@@ -111,3 +115,65 @@ def comment(candidate_id: int) -> Response:
         row = service.add_comment(session, current_actor(), candidate_id, data.text)
         body = CommentOut(id=row.id, author=row.author, role=row.role, text=row.text, at=row.at)
     return json_response(body, 201)
+
+
+@bp.post("/<int:candidate_id>/signoffs")
+@documented(
+    "Sign off (approve or object to) the candidate's current stage",
+    request=SignOffIn,
+    response=SignOffOut,
+    status=201,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator", "site", "viewer")
+def signoff(candidate_id: int) -> Response:
+    data = parse_body(SignOffIn)
+    with database().write() as session:
+        row = service.add_signoff(
+            session, current_actor(), candidate_id, data.approve, data.rationale, data.person
+        )
+        body = SignOffOut(
+            id=row.id,
+            stage=row.stage,
+            role=row.role,
+            person=row.person,
+            approve=row.approve,
+            rationale=row.rationale,
+            at=row.at,
+        )
+    return json_response(body, 201)
+
+
+@bp.post("/<int:candidate_id>/decision")
+@documented(
+    "A person's final decision (rejected or withdrawn) with its rationale",
+    request=DecisionIn,
+    response=CandidateOut,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator")
+def decision(candidate_id: int) -> Response:
+    data = parse_body(DecisionIn)
+    with database().write() as session:
+        service.decide(session, current_actor(), candidate_id, data.decision, data.rationale)
+        body = views.detail(session, candidate_id)
+    return json_response(body)
+
+
+@bp.post("/<int:candidate_id>/release-hold")
+@documented(
+    "Release the holds of the current stage after review",
+    request=HoldReleaseIn,
+    response=CandidateOut,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles("coordinator")
+def release_hold(candidate_id: int) -> Response:
+    data = parse_body(HoldReleaseIn)
+    with database().write() as session:
+        service.release_hold(session, current_actor(), candidate_id, data.rationale)
+        body = views.detail(session, candidate_id)
+    return json_response(body)

@@ -160,6 +160,7 @@ def ingest_detections(observation_id: int) -> Response:
             observation_id,
             batch["detections"],
             config.max_batch_detections,
+            body_sha256(),
         )
         body = {
             "observation_id": observation_id,

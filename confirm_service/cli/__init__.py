@@ -32,9 +32,11 @@ def main() -> None:
 
 def _register() -> None:
     from confirm_service.cli import (  # noqa: F401  (each module registers its commands)
+        audit,
         candidates,
         database,
         demo,
+        dossier,
         exchange,
         physics,
         protocol,

@@ -7,12 +7,15 @@ from functools import cache
 
 from confirm_service.config import ConfigError, Settings, load_settings
 from confirm_service.db import Database, current_revision
+from confirm_service.services import runtime
 from confirm_service.services.actor import Actor
 
 
 @cache
 def settings() -> Settings:
-    return load_settings()
+    loaded = load_settings()
+    runtime.configure(loaded)
+    return loaded
 
 
 def cli_actor(role: str = "admin") -> Actor:

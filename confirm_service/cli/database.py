@@ -27,3 +27,14 @@ def upgrade(revision: str) -> None:
 def current() -> None:
     """Print the schema revision of the database."""
     click.echo(current_revision(settings().database_url) or "none")
+
+
+@db_group.command("revision")
+@click.option("-m", "--message", required=True, help="What the migration changes.")
+def revision(message: str) -> None:
+    """(Developers) generate a migration from the models against the database at head."""
+    from alembic import command
+
+    from confirm_service.db import alembic_config
+
+    command.revision(alembic_config(settings().database_url), message=message, autogenerate=True)

@@ -28,11 +28,13 @@ class Candidate(Base):
     site_id: Mapped[int] = mapped_column(ForeignKey("sites.id"))
     protocol_name: Mapped[str] = mapped_column(String(128))
     protocol_sha256: Mapped[str] = mapped_column(String(64))
+    bands_sha256: Mapped[str] = mapped_column(String(64), default="")
     state: Mapped[str] = mapped_column(String(16), default="open")
     stage: Mapped[str] = mapped_column(String(128))
     stage_entered_at: Mapped[datetime] = mapped_column(default=utc_now)
     held: Mapped[bool] = mapped_column(Boolean, default=False)
     hold_reason: Mapped[str | None] = mapped_column(Text)
+    hold_released: Mapped[bool] = mapped_column(Boolean, default=False)
     reason_class: Mapped[str | None] = mapped_column(String(64))
     reason: Mapped[str | None] = mapped_column(Text)
     origin: Mapped[str] = mapped_column(String(16), default="intake")
@@ -129,12 +131,22 @@ class Comment(Base):
 
 
 class ProtocolRecord(Base):
-    """Every protocol file the service has loaded, by content hash, with its exact text."""
+    """Every protocol file the service has used, by content hash, with its exact text.
+
+    The interference-band file it names is kept too, so that a candidate is always evaluated
+    under exactly the files it was first evaluated under.
+    """
 
     __tablename__ = "protocol_records"
+    __table_args__ = (UniqueConstraint("sha256", "bands_sha256"),)
 
     id: Mapped[int] = mapped_column(primary_key=True)
     name: Mapped[str] = mapped_column(String(128))
-    sha256: Mapped[str] = mapped_column(String(64), unique=True)
+    version: Mapped[str] = mapped_column(String(64))
+    sha256: Mapped[str] = mapped_column(String(64))
     source_text: Mapped[str] = mapped_column(Text)
+    bands_sha256: Mapped[str] = mapped_column(String(64), default="")
+    bands_relative_path: Mapped[str | None] = mapped_column(String(400))
+    bands_text: Mapped[str | None] = mapped_column(Text)
+    active: Mapped[bool] = mapped_column(Boolean, default=False)
     loaded_at: Mapped[datetime] = mapped_column(default=utc_now)

@@ -13,9 +13,17 @@ from confirm_service.timeutil import utc_now
 
 
 class FollowUpRequest(Base):
+    """An intent recorded by the protocol: ask a site to observe, or escalate to contacts.
+
+    ``intent_key`` is the protocol's idempotency key for the action, so re-evaluation never
+    records the same intent twice. Delivery fills ``status``, ``attempts`` and ``sent_at``.
+    """
+
     __tablename__ = "followup_requests"
 
     id: Mapped[int] = mapped_column(primary_key=True)
+    intent_key: Mapped[str] = mapped_column(String(400), unique=True)
+    kind: Mapped[str] = mapped_column(String(32), default="request_followup")
     candidate_id: Mapped[int] = mapped_column(ForeignKey("candidates.id"), index=True)
     site_id: Mapped[int | None] = mapped_column(ForeignKey("sites.id"))
     stage: Mapped[str] = mapped_column(String(128))

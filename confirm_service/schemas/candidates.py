@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Annotated, Any
+from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, Field
 
@@ -95,6 +95,7 @@ class CandidateOut(CandidateSummary):
     history: list[TransitionOut]
     comments: list[CommentOut] = []
     signoffs: list[SignOffOut] = []
+    decision_checkpoint_size: int | None = None
     caution: str
 
 
@@ -109,3 +110,22 @@ class WithdrawIn(StrictModel):
 
 class CommentIn(StrictModel):
     text: Text
+
+
+class SignOffIn(StrictModel):
+    """A sign-off of the candidate's current stage by the person the token stands for."""
+
+    approve: bool = True
+    rationale: Text
+    person: Annotated[str, Field(min_length=1, max_length=200)] | None = None
+
+
+class DecisionIn(StrictModel):
+    """A person's final decision: ``rejected`` or ``withdrawn``, with its rationale."""
+
+    decision: Literal["rejected", "withdrawn"]
+    rationale: Text
+
+
+class HoldReleaseIn(StrictModel):
+    rationale: Text

@@ -206,5 +206,6 @@ def detail(session: Session, candidate_id: int) -> CandidateOut:
         history=history,
         comments=comments,
         signoffs=signoffs,
+        decision_checkpoint_size=candidate.decision_checkpoint_size,
         caution=CANDIDATE_IS_NOT_A_DETECTION,
     )

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import json
 import math
 from collections.abc import Sequence
 from datetime import datetime, timedelta
@@ -93,6 +94,10 @@ def _insert_detection_rows(session: Session, rows: list[tuple[Any, ...]]) -> Non
     connection.exec_driver_sql(statement, rows)
 
 
+def _frequency_of(row: tuple[Any, ...]) -> float:
+    return row[2]
+
+
 def insert_detections(
     session: Session, observation: Observation, rows: Sequence[DetectionIn]
 ) -> list[int]:
@@ -115,21 +120,16 @@ def insert_detections(
         for new_id, row in zip(ids, rows, strict=True)
     ]
     if tuples:
+        tuples.sort(key=_frequency_of)  # index-friendly order; ids keep the request's order
         _insert_detection_rows(session, tuples)
         observation.detection_count = (observation.detection_count or 0) + len(tuples)
     return ids
 
 
-def _rows_digest(rows: Sequence[DetectionIn]) -> str:
-    """SHA-256 over the rows' values in a fixed, documented order (repr of each float)."""
-    digest = hashlib.sha256()
-    for row in rows:
-        line = "|".join(
-            repr(row.get(key, DETECTION_DEFAULTS.get(key)))
-            for key in ("frequency_hz", "drift_hz_s", "snr", "time_offset_s", "bandwidth_hz")
-        )
-        digest.update(line.encode() + b"|" + repr(row.get("beam")).encode() + b"\n")
-    return digest.hexdigest()
+def rows_digest(rows: Sequence[DetectionIn]) -> str:
+    """SHA-256 of the rows as compact JSON with sorted keys: the batch's content digest."""
+    text = json.dumps(list(rows), sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def _trigger_candidates(
@@ -141,7 +141,7 @@ def _trigger_candidates(
 ) -> list[int]:
     from confirm_service.services import candidates
 
-    return candidates.after_ingest(session, actor, observation, rows, ids)
+    return candidates.on_new_data(session, actor, observation, rows, ids)
 
 
 def ingest_detections(
@@ -150,8 +150,13 @@ def ingest_detections(
     observation_id: int,
     rows: Sequence[DetectionIn],
     max_batch: int,
+    content_sha256: str | None = None,
 ) -> tuple[list[int], list[int]]:
-    """All-or-nothing bulk ingest. Returns (detection ids, ids of candidates it created)."""
+    """All-or-nothing bulk ingest. Returns (detection ids, ids of candidates it created).
+
+    ``content_sha256`` is the digest of the batch as received (the request body); when absent,
+    :func:`rows_digest` of the rows is recorded instead.
+    """
     if len(rows) > max_batch:
         raise TooLarge(
             f"{len(rows)} detections in one batch; the limit is {max_batch}",
@@ -173,7 +178,7 @@ def ingest_detections(
             "count": len(ids),
             "first_id": ids[0] if ids else None,
             "last_id": ids[-1] if ids else None,
-            "rows_sha256": _rows_digest(rows),
+            "content_sha256": content_sha256 or rows_digest(rows),
         },
     )
     candidate_ids = _trigger_candidates(session, actor, observation, rows, ids)
@@ -230,15 +235,12 @@ def create_observation(
     session.flush()
     payload = data.model_dump(mode="json", exclude={"detections"})
     payload["id"] = observation.id
-    payload["detections_sha256"] = _rows_digest(data.detections)
+    payload["detections_sha256"] = rows_digest(data.detections)
     payload["detection_count"] = len(data.detections)
     record(session, actor, "observation.created", f"observation:{observation.id}", payload)
     ids = insert_detections(session, observation, data.detections)
     candidate_ids = _trigger_candidates(session, actor, observation, data.detections, ids)
-    from confirm_service.services import candidates
-
-    candidate_ids += candidates.after_observation(session, actor, observation)
-    return observation, ids, sorted(set(candidate_ids))
+    return observation, ids, candidate_ids
 
 
 def get_observation(session: Session, observation_id: int) -> Observation:

@@ -296,7 +296,7 @@ def test_ingest_is_audited_with_a_digest(client, auth, db):
         ).scalar_one()
     payload = json.loads(entry.payload)
     assert payload["count"] == 10
-    assert len(payload["rows_sha256"]) == 64
+    assert len(payload["content_sha256"]) == 64
     assert entry.actor == "test-pipeline" and entry.role == "pipeline"
 
 

@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises:
-Create Date: 2026-12-01 20:51:03.145922
+Create Date: 2026-12-01 20:57:43.067030
 """
 
 from __future__ import annotations
@@ -96,13 +96,20 @@ def upgrade() -> None:
         "protocol_records",
         sa.Column("id", sa.Integer(), nullable=False),
         sa.Column("name", sa.String(length=128), nullable=False),
+        sa.Column("version", sa.String(length=64), nullable=False),
         sa.Column("sha256", sa.String(length=64), nullable=False),
         sa.Column("source_text", sa.Text(), nullable=False),
+        sa.Column("bands_sha256", sa.String(length=64), nullable=False),
+        sa.Column("bands_relative_path", sa.String(length=400), nullable=True),
+        sa.Column("bands_text", sa.Text(), nullable=True),
+        sa.Column("active", sa.Boolean(), nullable=False),
         sa.Column(
             "loaded_at", confirm_service.models.base.UTCDateTime(timezone=True), nullable=False
         ),
         sa.PrimaryKeyConstraint("id", name=op.f("pk_protocol_records")),
-        sa.UniqueConstraint("sha256", name=op.f("uq_protocol_records_sha256")),
+        sa.UniqueConstraint(
+            "sha256", "bands_sha256", name=op.f("uq_protocol_records_sha256_bands_sha256")
+        ),
     )
     op.create_table(
         "sites",
@@ -212,6 +219,7 @@ def upgrade() -> None:
         sa.Column("site_id", sa.Integer(), nullable=False),
         sa.Column("protocol_name", sa.String(length=128), nullable=False),
         sa.Column("protocol_sha256", sa.String(length=64), nullable=False),
+        sa.Column("bands_sha256", sa.String(length=64), nullable=False),
         sa.Column("state", sa.String(length=16), nullable=False),
         sa.Column("stage", sa.String(length=128), nullable=False),
         sa.Column(
@@ -221,6 +229,7 @@ def upgrade() -> None:
         ),
         sa.Column("held", sa.Boolean(), nullable=False),
         sa.Column("hold_reason", sa.Text(), nullable=True),
+        sa.Column("hold_released", sa.Boolean(), nullable=False),
         sa.Column("reason_class", sa.String(length=64), nullable=True),
         sa.Column("reason", sa.Text(), nullable=True),
         sa.Column("origin", sa.String(length=16), nullable=False),
@@ -350,6 +359,8 @@ def upgrade() -> None:
     op.create_table(
         "followup_requests",
         sa.Column("id", sa.Integer(), nullable=False),
+        sa.Column("intent_key", sa.String(length=400), nullable=False),
+        sa.Column("kind", sa.String(length=32), nullable=False),
         sa.Column("candidate_id", sa.Integer(), nullable=False),
         sa.Column("site_id", sa.Integer(), nullable=True),
         sa.Column("stage", sa.String(length=128), nullable=False),
@@ -370,6 +381,7 @@ def upgrade() -> None:
             ["site_id"], ["sites.id"], name=op.f("fk_followup_requests_site_id_sites")
         ),
         sa.PrimaryKeyConstraint("id", name=op.f("pk_followup_requests")),
+        sa.UniqueConstraint("intent_key", name=op.f("uq_followup_requests_intent_key")),
     )
     with op.batch_alter_table("followup_requests", schema=None) as batch_op:
         batch_op.create_index(

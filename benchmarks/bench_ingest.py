@@ -1,0 +1,178 @@
+"""Bulk-ingest benchmark: the HTTP path against a raw SQLAlchemy Core insert of the same rows.
+
+Run: ``python benchmarks/bench_ingest.py [--batches 4] [--batch-size 50000] [--database-url URL]``
+
+The service path is the whole request through the Flask app in-process (JSON parsing, pydantic
+validation, band/time checks, id allocation, insert, audit entry, idempotency record, commit).
+The reference is ``connection.execute(insert(detections), rows)`` of the same rows into a fresh
+database with the same schema and indexes. Both run on SQLite by default.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import tempfile
+import time
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+
+import numpy as np
+from sqlalchemy import insert
+
+from confirm_service.app import create_app
+from confirm_service.db import Database, upgrade_database
+from confirm_service.models import Detection
+from confirm_service.services.actor import SYSTEM
+from confirm_service.services.tokens import create_token
+
+START = datetime.now(UTC) - timedelta(hours=2)
+
+
+def make_rows(count: int, seed: int) -> list[dict]:
+    rng = np.random.default_rng(seed)
+    frequency = rng.uniform(1.40e9, 1.45e9, count)
+    drift = rng.uniform(-4.0, 4.0, count)
+    snr = rng.uniform(5.0, 9.0, count)  # below the default intake threshold: pure ingest
+    offset = rng.uniform(0.0, 290.0, count)
+    return [
+        {
+            "frequency_hz": float(f),
+            "drift_hz_s": float(d),
+            "snr": float(s),
+            "time_offset_s": float(o),
+        }
+        for f, d, s, o in zip(frequency, drift, snr, offset, strict=True)
+    ]
+
+
+def prepare(url: str) -> tuple[object, str, int]:
+    upgrade_database(url)
+    app = create_app({"database_url": url, "instance_path": Path(tempfile.mkdtemp())})
+    db: Database = app.extensions["confirm.db"]
+    with db.write() as session:
+        _, secret = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
+    client = app.test_client()
+    headers = {"Authorization": f"Bearer {secret}"}
+    site = {
+        "code": "BNC",
+        "name": "Bench Site",
+        "latitude_deg": 10.0,
+        "longitude_deg": 20.0,
+        "elevation_m": 100.0,
+    }
+    with db.write() as session:
+        _, admin = create_token(session, SYSTEM, "bench-admin", "admin")
+    admin_headers = {"Authorization": f"Bearer {admin}"}
+    client.post("/api/v1/sites", json=site, headers=admin_headers)
+    client.post(
+        "/api/v1/targets",
+        json={"name": "Bench-1", "ra_deg": 12.0, "dec_deg": 30.0},
+        headers=admin_headers,
+    )
+    scan = {
+        "site": "BNC",
+        "target": "Bench-1",
+        "start": START.isoformat(),
+        "duration_s": 300.0,
+        "frequency_min_hz": 1.40e9,
+        "frequency_max_hz": 1.45e9,
+        "channel_width_hz": 2.79,
+        "time_resolution_s": 18.25,
+        "on_source": True,
+    }
+    observation_id = client.post("/api/v1/observations", json=scan, headers=headers).get_json()[
+        "id"
+    ]
+    return client, headers, observation_id
+
+
+def bench_service(url: str, batches: list[bytes]) -> float:
+    client, headers, observation_id = prepare(url)
+    path = f"/api/v1/observations/{observation_id}/detections"
+    total = 0.0
+    for index, body in enumerate(batches):
+        request_headers = {**headers, "Idempotency-Key": f"bench-{index}"}
+        began = time.perf_counter()
+        response = client.post(
+            path, data=body, content_type="application/json", headers=request_headers
+        )
+        total += time.perf_counter() - began
+        if response.status_code != 201:
+            sys.exit(
+                f"ingest failed: {response.status_code} {response.get_data(as_text=True)[:300]}"
+            )
+    return total
+
+
+def bench_core(url: str, batches: list[list[dict]]) -> float:
+    upgrade_database(url)
+    db = Database(url)
+    with db.write() as session:
+        from confirm_service.models import Observation, Site
+
+        site = Site(
+            code="BNC", name="Bench", latitude_deg=10.0, longitude_deg=20.0, elevation_m=100.0
+        )
+        session.add(site)
+        session.flush()
+        observation = Observation(
+            site_id=site.id,
+            pointing_ra_deg=12.0,
+            pointing_dec_deg=30.0,
+            start=START,
+            duration_s=300.0,
+            frequency_min_hz=1.40e9,
+            frequency_max_hz=1.45e9,
+            channel_width_hz=2.79,
+            time_resolution_s=18.25,
+            on_source=True,
+        )
+        session.add(observation)
+        session.flush()
+        observation_id = observation.id
+    total = 0.0
+    for rows in batches:
+        values = [
+            {
+                **row,
+                "observation_id": observation_id,
+                "bandwidth_hz": None,
+                "beam": None,
+                "flagged_candidate": False,
+            }
+            for row in rows
+        ]
+        began = time.perf_counter()
+        with db.engine.begin() as connection:
+            connection.execute(insert(Detection.__table__), values)
+        total += time.perf_counter() - began
+    db.dispose()
+    return total
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--batches", type=int, default=4)
+    parser.add_argument("--batch-size", type=int, default=50_000)
+    args = parser.parse_args()
+    row_batches = [make_rows(args.batch_size, seed) for seed in range(args.batches)]
+    bodies = [json.dumps({"detections": rows}).encode() for rows in row_batches]
+    count = args.batches * args.batch_size
+    with tempfile.TemporaryDirectory() as folder:
+        service_s = bench_service(f"sqlite:///{folder}/service.db", bodies)
+        core_s = bench_core(f"sqlite:///{folder}/core.db", row_batches)
+    service_rate = count / service_s
+    core_rate = count / core_s
+    print(
+        f"detections                 : {count:,} in {args.batches} batches of {args.batch_size:,}"
+    )
+    print(f"service path (HTTP, SQLite): {service_s:8.3f} s  {service_rate:12,.0f} detections/s")
+    print(f"raw SQLAlchemy Core insert : {core_s:8.3f} s  {core_rate:12,.0f} detections/s")
+    print(f"ratio service / Core       : {service_rate / core_rate:8.2f}  (goal >= 0.5)")
+    print(f"goal 100,000 detections/s  : {'met' if service_rate >= 100_000 else 'NOT met'}")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,3 @@
+"""Commands: dossier."""
+
+from confirm_service.cli import main  # noqa: F401

@@ -1,0 +1,386 @@
+"""An invented scenario that exercises the whole service through its HTTP API.
+
+Three invented sites on three continents, three invented targets, an on/off cadence at the first
+site with interference and one sky-fixed signal, a re-observation a day later, and a look from a
+distant partner site at the frequency predicted for it. The sky-fixed signal is generated with
+the physics engine (the same hypothesis the checks test); the interference is not.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from confirm_service import physics
+from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
+
+SITES = [
+    {
+        "code": "PRA",
+        "name": "Pell Ridge Array",
+        "latitude_deg": 38.52,
+        "longitude_deg": -107.31,
+        "elevation_m": 2410.0,
+        "min_elevation_deg": 15.0,
+        "sun_avoidance_deg": 10.0,
+        "email": "ops@pell-ridge.example",
+    },
+    {
+        "code": "TFO",
+        "name": "Tamsin Flats Observatory",
+        "latitude_deg": -31.21,
+        "longitude_deg": 118.93,
+        "elevation_m": 310.0,
+        "min_elevation_deg": 12.0,
+        "sun_avoidance_deg": 10.0,
+        "webhook_url": "https://tamsin-flats.example/hooks/confirm",
+    },
+    {
+        "code": "ORV",
+        "name": "Orvale Dish",
+        "latitude_deg": 44.08,
+        "longitude_deg": 5.61,
+        "elevation_m": 820.0,
+        "min_elevation_deg": 10.0,
+        "sun_avoidance_deg": 15.0,
+        "email": "duty@orvale.example",
+    },
+]
+TARGETS = [
+    {
+        "name": "Kestrel-7",
+        "ra_deg": 201.365,
+        "dec_deg": -4.42,
+        "pm_ra_mas_yr": -12.5,
+        "pm_dec_mas_yr": 4.1,
+        "parallax_mas": 38.2,
+    },
+    {"name": "Lumen-12", "ra_deg": 84.71, "dec_deg": 31.05},
+    {"name": "Harrow-3", "ra_deg": 312.02, "dec_deg": -48.3},
+]
+SCENARIO_START = datetime(2026, 11, 20, tzinfo=UTC)
+SCAN_S = 300.0
+BAND_HZ = (1.10e9, 1.70e9)
+CHANNEL_HZ = 2.79
+TIME_RESOLUTION_S = 18.25
+
+SKY_FIXED_HZ = 1_423_051_733.25
+SKY_FIXED_RESIDUAL_HZ_S = 0.0135
+"""The invented transmitter: observed at 1423.05 MHz at the first scan, drifting slightly."""
+
+INTERFERENCE = {
+    "present_off_source": {"frequency_hz": 1_431_250_000.0, "drift_hz_s": 0.0, "snr": 41.0},
+    "zero_drift": {"frequency_hz": 1_436_480_112.5, "drift_hz_s": 0.0, "snr": 17.5},
+    "navigation_band": {"frequency_hz": 1_575_420_040.0, "drift_hz_s": 0.153, "snr": 55.0},
+}
+"""Three kinds of human-made interference, as a pipeline would see them."""
+
+
+@dataclass
+class DemoResult:
+    folder: Path
+    database_url: str
+    candidates: list[dict[str, Any]] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    audit: dict[str, Any] = field(default_factory=dict)
+    dossier: Path | None = None
+
+
+def _location(site: dict[str, Any]) -> Any:
+    return physics.site_location(site["latitude_deg"], site["longitude_deg"], site["elevation_m"])
+
+
+def _coord(target: dict[str, Any]) -> Any:
+    return physics.target_coord(
+        target["ra_deg"],
+        target["dec_deg"],
+        pm_ra_mas_yr=target.get("pm_ra_mas_yr"),
+        pm_dec_mas_yr=target.get("pm_dec_mas_yr"),
+        parallax_mas=target.get("parallax_mas"),
+        epoch=datetime(2016, 1, 1, tzinfo=UTC) if target.get("pm_ra_mas_yr") else None,
+    )
+
+
+def first_window(
+    site: dict[str, Any], target: dict[str, Any], after: datetime, minimum_s: float
+) -> datetime:
+    """Start of the first window after ``after`` long enough for ``minimum_s`` of scans."""
+    windows = physics.visibility_windows(
+        _location(site),
+        _coord(target),
+        after,
+        after + timedelta(days=3),
+        min_elevation_deg=site["min_elevation_deg"],
+        sun_avoidance_deg=site["sun_avoidance_deg"],
+    )
+    for window in windows:
+        if (window.end - window.start).total_seconds() >= minimum_s + 600:
+            return window.start + timedelta(minutes=5)
+    raise RuntimeError(f"no visibility window for {target['name']} at {site['code']}")
+
+
+class SkyFixedSignal:
+    """The invented transmitter, predicted at any site and time by the physics engine."""
+
+    def __init__(self, site: dict[str, Any], target: dict[str, Any], at: datetime) -> None:
+        self.target = _coord(target)
+        location = _location(site)
+        earth = float(
+            np.ravel(
+                physics.earth_drift_hz_s(location, self.target, physics.utc_time(at), SKY_FIXED_HZ)
+            )[0]
+        )
+        self.reference = physics.SignalMeasurement(
+            location, at.timestamp(), SKY_FIXED_HZ, earth + SKY_FIXED_RESIDUAL_HZ_S
+        )
+
+    def seen_at(self, site: dict[str, Any], at: datetime, snr: float) -> dict[str, float]:
+        prediction = physics.predict_signal(
+            self.reference, self.target, _location(site), [at.timestamp()]
+        )
+        return {
+            "frequency_hz": round(float(prediction.frequency_hz[0]), 3),
+            "drift_hz_s": round(float(prediction.drift_hz_s[0]), 5),
+            "snr": snr,
+        }
+
+
+def _scan(
+    site: str,
+    start: datetime,
+    on_source: bool,
+    cadence: str,
+    target: str | None,
+    pointing: tuple[float, float] | None,
+    detections: list[dict[str, Any]],
+    run: str,
+) -> dict[str, Any]:
+    body: dict[str, Any] = {
+        "site": site,
+        "start": start.isoformat(),
+        "duration_s": SCAN_S,
+        "frequency_min_hz": BAND_HZ[0],
+        "frequency_max_hz": BAND_HZ[1],
+        "channel_width_hz": CHANNEL_HZ,
+        "time_resolution_s": TIME_RESOLUTION_S,
+        "on_source": on_source,
+        "beam": "b0",
+        "cadence": cadence,
+        "pipeline_run": run,
+        "detections": detections,
+    }
+    if target:
+        body["target"] = target
+    if pointing:
+        body["pointing_ra_deg"], body["pointing_dec_deg"] = pointing
+    return body
+
+
+def noise_hits(rng: np.random.Generator, count: int) -> list[dict[str, Any]]:
+    """Faint hits below the intake threshold, as every scan has."""
+    return [
+        {
+            "frequency_hz": float(rng.uniform(1.40e9, 1.45e9)),
+            "drift_hz_s": float(rng.uniform(-2, 2)),
+            "snr": float(rng.uniform(5, 9)),
+            "time_offset_s": float(rng.uniform(0, SCAN_S)),
+        }
+        for _ in range(count)
+    ]
+
+
+def scenario_scans() -> list[tuple[str, dict[str, Any]]]:
+    """Every scan of the scenario in time order, labelled for the summary."""
+    rng = np.random.default_rng(20261120)
+    north, south = SITES[0], SITES[1]
+    target = TARGETS[0]
+    cadence_start = first_window(north, target, SCENARIO_START, 6 * SCAN_S)
+    signal = SkyFixedSignal(north, target, cadence_start + timedelta(seconds=60))
+    scans: list[tuple[str, dict[str, Any]]] = []
+    off_pointings = [
+        (target["ra_deg"] + 0.9, target["dec_deg"]),
+        (target["ra_deg"] - 0.9, target["dec_deg"] + 0.5),
+        (target["ra_deg"], target["dec_deg"] - 1.1),
+    ]
+    for index in range(6):
+        start = cadence_start + timedelta(seconds=index * (SCAN_S + 30))
+        on = index % 2 == 0
+        hits = noise_hits(rng, 40)
+        hits.append({**INTERFERENCE["present_off_source"], "time_offset_s": 12.0})
+        if on:
+            hits.append({**INTERFERENCE["zero_drift"], "time_offset_s": 30.0})
+            # The pipeline flags this one itself the first time (intake alone would skip it).
+            flag = {"candidate": True} if index == 0 else {}
+            hits.append({**INTERFERENCE["navigation_band"], "time_offset_s": 45.0, **flag})
+            hit = signal.seen_at(north, start + timedelta(seconds=60), 24.0 - index)
+            hits.append({**hit, "time_offset_s": 60.0})
+        label = f"cadence scan {index + 1} ({'on' if on else 'off'}-source)"
+        scans.append(
+            (
+                label,
+                _scan(
+                    "PRA",
+                    start,
+                    on,
+                    "PRA-20261120-K7",
+                    target["name"] if on else None,
+                    None if on else off_pointings[index // 2],
+                    hits,
+                    "run-0042",
+                ),
+            )
+        )
+    again = first_window(north, target, cadence_start + timedelta(hours=20), SCAN_S)
+    hit = signal.seen_at(north, again + timedelta(seconds=90), 21.0)
+    scans.append(
+        (
+            "re-observation",
+            _scan(
+                "PRA",
+                again,
+                True,
+                "PRA-20261121-K7",
+                target["name"],
+                None,
+                [*noise_hits(rng, 40), {**hit, "time_offset_s": 90.0}],
+                "run-0043",
+            ),
+        )
+    )
+    look = first_window(south, target, again + timedelta(hours=1), SCAN_S)
+    hit = signal.seen_at(south, look + timedelta(seconds=120), 15.5)
+    scans.append(
+        (
+            "independent site",
+            _scan(
+                "TFO",
+                look,
+                True,
+                "TFO-20261122-K7",
+                target["name"],
+                None,
+                [*noise_hits(rng, 40), {**hit, "time_offset_s": 120.0}],
+                "tf-7781",
+            ),
+        )
+    )
+    return scans
+
+
+def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
+    """Create a fresh SQLite database in ``folder`` and run the scenario through the API."""
+    from confirm_service.app import create_app
+    from confirm_service.db import upgrade_database
+    from confirm_service.services.actor import SYSTEM
+    from confirm_service.services.tokens import create_token
+
+    folder.mkdir(parents=True, exist_ok=False)
+    url = f"sqlite:///{folder / 'confirm-service.db'}"
+    result = DemoResult(folder=folder, database_url=url)
+    say(f"database: {url}")
+    upgrade_database(url)
+    app = create_app({"database_url": url, "instance_path": folder})
+    db = app.extensions["confirm.db"]
+    secrets = {}
+    with db.write() as session:
+        for name, role in [
+            ("pipeline-pra", "pipeline"),
+            ("pipeline-tfo", "pipeline"),
+            ("coordinator-a", "coordinator"),
+            ("coordinator-b", "coordinator"),
+        ]:
+            _, secrets[name] = create_token(session, SYSTEM, name, role)
+    client = app.test_client()
+
+    def call(method: str, path: str, who: str, body: Any = None) -> Any:
+        response = client.open(
+            path, method=method, json=body, headers={"Authorization": f"Bearer {secrets[who]}"}
+        )
+        if response.status_code >= 400:
+            raise RuntimeError(f"{method} {path}: {response.status_code} {response.get_json()}")
+        return response.get_json()
+
+    for site in SITES:
+        call("POST", "/api/v1/sites", "coordinator-a", site)
+    for target in TARGETS:
+        call("POST", "/api/v1/targets", "coordinator-a", target)
+    say(f"registered {len(SITES)} sites and {len(TARGETS)} targets")
+    detections = 0
+    for label, scan in scenario_scans():
+        who = "pipeline-tfo" if scan["site"] == "TFO" else "pipeline-pra"
+        created = call("POST", "/api/v1/observations", who, scan)
+        detections += created["detection_count"]
+        new = f", new candidates {created['candidate_ids']}" if created["candidate_ids"] else ""
+        say(
+            f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  "
+            f"{created['detection_count']:3d} detections{new}"
+        )
+    listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
+    for summary in listing["items"]:
+        if summary["stage"] == "review" and summary["state"] == "open":
+            for who in ("coordinator-a", "coordinator-b"):
+                call(
+                    "POST",
+                    f"/api/v1/candidates/{summary['id']}/signoffs",
+                    who,
+                    {
+                        "approve": True,
+                        "rationale": "Dossier reviewed: cadence, drift, "
+                        "re-observation and the independent site agree with a sky-fixed source.",
+                    },
+                )
+    listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
+    result.candidates = [
+        call("GET", f"/api/v1/candidates/{c['id']}", "coordinator-a") for c in listing["items"]
+    ]
+    result.counts = {
+        "sites": len(SITES),
+        "targets": len(TARGETS),
+        "detections": detections,
+        "candidates": len(result.candidates),
+    }
+    app.extensions["confirm.db"].dispose()
+    return result
+
+
+def format_value(value: float | None, unit: str | None) -> str:
+    if value is None:
+        return "—"
+    text = f"{value:.6g}" if abs(value) < 1e6 else f"{value:,.3f}"
+    return f"{text} {unit}" if unit else text
+
+
+def summary_lines(result: DemoResult) -> list[str]:
+    lines = [
+        "",
+        f"{result.counts['detections']} detections from {result.counts['sites']} sites; "
+        f"{result.counts['candidates']} candidates:",
+    ]
+    for candidate in result.candidates:
+        lines.append("")
+        lines.append(
+            f"candidate {candidate['id']}: {candidate['state'].upper()} at stage "
+            f"{candidate['stage']!r}  (f_bary {candidate['barycentric_frequency_hz']:,.3f} Hz, "
+            f"residual drift {candidate['residual_drift_hz_s']:+.5f} Hz/s)"
+        )
+        if candidate["reason"]:
+            lines.append(f"  why: {candidate['reason']}")
+        lines.append(
+            f"  {'check':<20} {'outcome':<15} {'measured':>22} {'expected':>22} {'tolerance':>14}"
+        )
+        for check in candidate["checks"]:
+            lines.append(
+                f"  {check['kind']:<20} {check['outcome']:<15} "
+                f"{format_value(check['measured'], check['unit']):>22} "
+                f"{format_value(check['expected'], check['unit']):>22} "
+                f"{format_value(check['tolerance'], check['unit']):>14}"
+            )
+        sites = sorted({d["site"] for d in candidate["detections"]})
+        lines.append(f"  linked detections: {len(candidate['detections'])} at {', '.join(sites)}")
+    lines += ["", "CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION]
+    return lines
