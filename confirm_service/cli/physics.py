@@ -1,3 +1,257 @@
-"""Commands: physics."""
+"""``confirm-service predict`` and ``confirm-service visibility``."""
 
-from confirm_service.cli import main  # noqa: F401
+from __future__ import annotations
+
+import json
+from datetime import datetime
+
+import click
+
+from confirm_service.cli import main
+from confirm_service.cli.context import open_database
+from confirm_service.services import sky
+from confirm_service.services.errors import Invalid
+
+
+def parse_time(value: str | None, field: str) -> datetime | None:
+    """An ISO 8601 time with an explicit offset; a naive time is refused."""
+    if value is None:
+        return None
+    try:
+        parsed = datetime.fromisoformat(value)
+    except ValueError:
+        raise Invalid("bad time", [(field, f"{value!r} is not ISO 8601")]) from None
+    if parsed.tzinfo is None:
+        raise Invalid("naive time", [(field, "needs a time-zone offset, e.g. +00:00")])
+    return parsed
+
+
+def site_options(prefix: str, label: str):  # type: ignore[no-untyped-def]
+    dash = prefix.replace("_", "-")
+
+    def decorate(command):  # type: ignore[no-untyped-def]
+        for option in reversed(
+            [
+                click.option(f"--{dash}", f"{prefix}", default=None, help=f"{label}: site code"),
+                click.option(
+                    f"--{dash}-lat",
+                    f"{prefix}_lat",
+                    type=float,
+                    default=None,
+                    help=f"{label}: latitude, deg",
+                ),
+                click.option(
+                    f"--{dash}-lon",
+                    f"{prefix}_lon",
+                    type=float,
+                    default=None,
+                    help=f"{label}: longitude, deg east",
+                ),
+                click.option(
+                    f"--{dash}-height",
+                    f"{prefix}_height",
+                    type=float,
+                    default=None,
+                    help=f"{label}: height above the ellipsoid, m",
+                ),
+            ]
+        ):
+            command = option(command)
+        return command
+
+    return decorate
+
+
+def target_options(command):  # type: ignore[no-untyped-def]
+    command = click.option("--dec", type=float, default=None, help="ICRS declination, deg")(command)
+    command = click.option("--ra", type=float, default=None, help="ICRS right ascension, deg")(
+        command
+    )
+    return click.option("--target", default=None, help="registered target name")(command)
+
+
+def _database_if_needed(*names: str | None):  # type: ignore[no-untyped-def]
+    return open_database() if any(names) else None
+
+
+def _resolve(database, kind, *args):  # type: ignore[no-untyped-def]
+    if database is None:
+        if kind == "site":
+            return sky.resolve_site(None, None, *args)  # type: ignore[arg-type]
+        return sky.resolve_target(None, None, *args)  # type: ignore[arg-type]
+    with database.read() as session:
+        if kind == "site":
+            return sky.resolve_site(session, *args)
+        return sky.resolve_target(session, *args)
+
+
+@main.command("predict")
+@site_options("site", "detecting site")
+@target_options
+@click.option("--time", "time_text", required=True, help="ISO 8601 with offset")
+@click.option("--observed-frequency-hz", type=float, required=True)
+@click.option("--observed-drift-hz-s", type=float, default=None)
+@click.option("--drift-uncertainty-hz-s", type=float, default=None)
+@site_options("to_site", "second site")
+@click.option("--to-time", "to_time_text", default=None, help="ISO 8601 with offset")
+@click.option("--json", "as_json", is_flag=True, help="machine-readable output")
+def predict(
+    site,
+    site_lat,
+    site_lon,
+    site_height,
+    target,
+    ra,
+    dec,
+    time_text,  # type: ignore[no-untyped-def]
+    observed_frequency_hz,
+    observed_drift_hz_s,
+    drift_uncertainty_hz_s,
+    to_site,
+    to_site_lat,
+    to_site_lon,
+    to_site_height,
+    to_time_text,
+    as_json,
+):
+    """Doppler quantities of a detection, and the signal expected at a second site/time."""
+    time = parse_time(time_text, "time")
+    to_time = parse_time(to_time_text, "to_time")
+    database = _database_if_needed(site, target, to_site)
+    here = (
+        _resolve(database, "site", site, site_lat, site_lon, site_height)
+        if database
+        else sky.resolve_site(None, None, site_lat, site_lon, site_height)
+    )  # type: ignore[arg-type]
+    where = (
+        _resolve(database, "target", target, ra, dec)
+        if database and target
+        else sky.resolve_target(None, None, ra, dec)
+    )  # type: ignore[arg-type]
+    there = None
+    if to_site or to_site_lat is not None:
+        there = (
+            _resolve(database, "site", to_site, to_site_lat, to_site_lon, to_site_height, "to_site")
+            if database and to_site
+            else sky.resolve_site(
+                None,
+                None,
+                to_site_lat,
+                to_site_lon,
+                to_site_height,  # type: ignore[arg-type]
+                "to_site",
+            )
+        )
+    result = sky.predict(
+        here,
+        where,
+        time,
+        observed_frequency_hz,
+        observed_drift_hz_s,
+        drift_uncertainty_hz_s,
+        there,
+        to_time,
+    )
+    if as_json:
+        click.echo(result.model_dump_json(indent=2))
+        return
+    rows = [
+        ("radial velocity (toward target)", result.radial_velocity_m_s, "m/s"),
+        ("Earth drift at observed frequency", result.earth_drift_hz_s, "Hz/s"),
+        ("barycentric frequency", result.barycentric_frequency_hz, "Hz"),
+        ("residual drift", result.residual_drift_hz_s, "Hz/s"),
+        ("predicted frequency at second site", result.predicted_frequency_hz, "Hz"),
+        ("  uncertainty (1 sigma)", result.predicted_frequency_uncertainty_hz, "Hz"),
+        ("predicted drift at second site", result.predicted_drift_hz_s, "Hz/s"),
+        ("  uncertainty (1 sigma)", result.predicted_drift_uncertainty_hz_s, "Hz/s"),
+        ("second site radial velocity", result.to_radial_velocity_m_s, "m/s"),
+        ("second site Earth drift", result.to_earth_drift_hz_s, "Hz/s"),
+        ("distance between sites", result.site_distance_km, "km"),
+    ]
+    for label, value, unit in rows:
+        if value is not None:
+            click.echo(f"{label:<36} {value:>22.6f} {unit}")
+    for note in result.notes:
+        click.echo(f"note: {note}")
+
+
+@main.command("visibility")
+@site_options("site", "site (omit for every registered site)")
+@target_options
+@click.option("--from", "from_text", required=True, help="ISO 8601 with offset")
+@click.option("--days", type=float, default=1.0, show_default=True)
+@click.option(
+    "--count", type=int, default=3, show_default=True, help="windows per site when no site is given"
+)
+@click.option("--json", "as_json", is_flag=True)
+def visibility(
+    site,
+    site_lat,
+    site_lon,
+    site_height,
+    target,
+    ra,
+    dec,
+    from_text,
+    days,
+    count,  # type: ignore[no-untyped-def]
+    as_json,
+):
+    """When a target is above a site's minimum elevation and clear of the Sun.
+
+    Geometry only: each site's own safety rules (e.g. Sun avoidance) still govern the telescope.
+    """
+    start = parse_time(from_text, "from")
+    database = _database_if_needed(site, target) or (
+        open_database() if site is None and site_lat is None else None
+    )
+    where = (
+        _resolve(database, "target", target, ra, dec)
+        if database and target
+        else sky.resolve_target(None, None, ra, dec)
+    )  # type: ignore[arg-type]
+    if site is None and site_lat is None:
+        with database.read() as session:  # type: ignore[union-attr]
+            found = sky.next_windows_everywhere(session, where, start, count)
+        if as_json:
+            click.echo(
+                json.dumps(
+                    {
+                        code: [
+                            {
+                                "start": w.start.isoformat(),
+                                "end": w.end.isoformat(),
+                                "max_elevation_deg": w.max_elevation_deg,
+                            }
+                            for w in ws
+                        ]
+                        for code, ws in found.items()
+                    },
+                    indent=2,
+                )
+            )
+            return
+        for code, windows in found.items():
+            for w in windows:
+                click.echo(
+                    f"{code:<8} {w.start:%Y-%m-%d %H:%M:%S} – {w.end:%Y-%m-%d %H:%M:%S} UTC"
+                    f"  peak {w.max_elevation_deg:5.1f} deg"
+                )
+        return
+    here = (
+        _resolve(database, "site", site, site_lat, site_lon, site_height)
+        if database and site
+        else sky.resolve_site(None, None, site_lat, site_lon, site_height)
+    )  # type: ignore[arg-type]
+    result = sky.visibility(here, where, start, days)
+    if as_json:
+        click.echo(result.model_dump_json(indent=2))
+        return
+    click.echo(f"{'start (UTC)':<20} {'end (UTC)':<20} {'duration':>10} {'peak elevation':>15}")
+    for w in result.windows:
+        click.echo(
+            f"{w.start:%Y-%m-%d %H:%M:%S}  {w.end:%Y-%m-%d %H:%M:%S}  "
+            f"{w.duration_s / 3600:8.2f} h  {w.max_elevation_deg:12.1f} deg"
+        )
+    for note in result.notes:
+        click.echo(f"note: {note}")

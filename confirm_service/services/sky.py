@@ -1,0 +1,160 @@
+"""Predictions and visibility for registered sites and targets, or for explicit positions.
+
+Resolves site codes and target names from the log, then calls the plain-value functions of
+:mod:`confirm_service.services.predictions`; physics refusals become field errors (422).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy.orm import Session
+
+from confirm_service import physics
+from confirm_service.physics import PhysicsInputError
+from confirm_service.schemas.predictions import PredictionResult, VisibilityResult
+from confirm_service.services import predictions
+from confirm_service.services.errors import Invalid
+from confirm_service.services.sites import all_sites, site_by_code, target_by_name
+
+
+@dataclass(frozen=True)
+class SitePosition:
+    code: str | None
+    latitude_deg: float
+    longitude_deg: float
+    elevation_m: float
+    min_elevation_deg: float = 10.0
+    sun_avoidance_deg: float = 5.0
+
+
+@dataclass(frozen=True)
+class TargetPosition:
+    name: str | None
+    ra_deg: float
+    dec_deg: float
+    motion: dict[str, Any]
+
+
+@contextmanager
+def physics_refusals() -> Iterator[None]:
+    """Turn a physics refusal into a 422 naming the field."""
+    try:
+        yield
+    except PhysicsInputError as exc:
+        raise Invalid(exc.message, [(exc.field, exc.message)]) from None
+
+
+def resolve_site(
+    session: Session,
+    code: str | None,
+    lat: float | None,
+    lon: float | None,
+    height: float | None,
+    prefix: str = "site",
+) -> SitePosition:
+    """A registered site by code, or an explicit position (degrees, metres)."""
+    if code:
+        site = site_by_code(session, code, prefix)
+        return SitePosition(
+            site.code,
+            site.latitude_deg,
+            site.longitude_deg,
+            site.elevation_m,
+            site.min_elevation_deg,
+            site.sun_avoidance_deg,
+        )
+    if lat is None or lon is None:
+        raise Invalid(
+            "no site", [(prefix, f"give {prefix} (a code) or {prefix}_lat and {prefix}_lon")]
+        )
+    return SitePosition(None, lat, lon, height or 0.0)
+
+
+def resolve_target(
+    session: Session, name: str | None, ra: float | None, dec: float | None
+) -> TargetPosition:
+    if name:
+        target = target_by_name(session, name)
+        motion = {
+            "pm_ra_mas_yr": target.pm_ra_mas_yr,
+            "pm_dec_mas_yr": target.pm_dec_mas_yr,
+            "parallax_mas": target.parallax_mas,
+            "distance_pc": target.distance_pc,
+            "epoch": target.epoch,
+        }
+        return TargetPosition(target.name, target.ra_deg, target.dec_deg, motion)
+    if ra is None or dec is None:
+        raise Invalid("no target", [("target", "give target (a name) or ra and dec")])
+    return TargetPosition(None, ra, dec, {})
+
+
+def predict(
+    site: SitePosition,
+    target: TargetPosition,
+    time: datetime,
+    observed_frequency_hz: float,
+    observed_drift_hz_s: float | None = None,
+    drift_uncertainty_hz_s: float | None = None,
+    to_site: SitePosition | None = None,
+    to_time: datetime | None = None,
+) -> PredictionResult:
+    with physics_refusals():
+        return predictions.compute_prediction(
+            site.latitude_deg,
+            site.longitude_deg,
+            site.elevation_m,
+            target.ra_deg,
+            target.dec_deg,
+            time,
+            observed_frequency_hz,
+            observed_drift_hz_s,
+            drift_uncertainty_hz_s,
+            (to_site.latitude_deg, to_site.longitude_deg, to_site.elevation_m) if to_site else None,
+            to_time,
+            **target.motion,
+        )
+
+
+def visibility(
+    site: SitePosition,
+    target: TargetPosition,
+    start: datetime,
+    days: float,
+    min_elevation_deg: float | None = None,
+    sun_avoidance_deg: float | None = None,
+) -> VisibilityResult:
+    with physics_refusals():
+        return predictions.compute_visibility(
+            site.latitude_deg,
+            site.longitude_deg,
+            site.elevation_m,
+            target.ra_deg,
+            target.dec_deg,
+            start,
+            days,
+            site.min_elevation_deg if min_elevation_deg is None else min_elevation_deg,
+            site.sun_avoidance_deg if sun_avoidance_deg is None else sun_avoidance_deg,
+        )
+
+
+def next_windows_everywhere(
+    session: Session, target: TargetPosition, start: datetime, count: int
+) -> dict[str, list[Any]]:
+    """The next ``count`` windows of ``target`` at every registered site."""
+    with physics_refusals():
+        coord = physics.target_coord(target.ra_deg, target.dec_deg, **target.motion)
+        sites = [
+            (
+                s.code,
+                physics.site_location(s.latitude_deg, s.longitude_deg, s.elevation_m),
+                s.min_elevation_deg,
+                s.sun_avoidance_deg,
+            )
+            for s in all_sites(session)
+        ]
+        return physics.next_windows(sites, coord, start, count)
