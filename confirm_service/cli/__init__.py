@@ -40,6 +40,7 @@ def _register() -> None:
         exchange,
         physics,
         protocol,
+        scheduler,
         serve,
         tokens,
     )
