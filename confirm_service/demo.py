@@ -382,5 +382,16 @@ def summary_lines(result: DemoResult) -> list[str]:
             )
         sites = sorted({d["site"] for d in candidate["detections"]})
         lines.append(f"  linked detections: {len(candidate['detections'])} at {', '.join(sites)}")
+    if result.dossier is not None:
+        audit = result.audit
+        lines += [
+            "",
+            f"audit log: {audit['entries']} entries, {audit['checkpoints']} signed checkpoints, "
+            f"{'intact' if audit['log_ok'] else 'DAMAGED'}",
+            f"dossier: {result.dossier}/index.html "
+            f"({'verified offline' if audit['dossier_ok'] else 'NOT verified'}: "
+            + "; ".join(audit["dossier_checked"])
+            + ")",
+        ]
     lines += ["", "CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION]
     return lines

@@ -29,7 +29,7 @@ def pytest_sessionstart(session: pytest.Session) -> None:
 
 
 def _worker() -> str:
-    return os.environ.get("PYTEST_XDIST_WORKER", "main")
+    return os.environ.get("PYTEST_XDIST_WORKER", f"main{os.getpid()}")
 
 
 def _postgres_worker_url() -> str:

@@ -177,3 +177,19 @@ def release_hold(candidate_id: int) -> Response:
         service.release_hold(session, current_actor(), candidate_id, data.rationale)
         body = views.detail(session, candidate_id)
     return json_response(body)
+
+
+@bp.get("/<int:candidate_id>/dossier")
+@documented(
+    "The candidate's dossier as JSON, with inclusion proofs against a fresh signed checkpoint",
+    error_statuses=(401, 403, 404),
+    tag="candidates",
+)
+@roles(*READ_ROLES)
+def dossier(candidate_id: int) -> Response:
+    from confirm_service.api.common import settings
+    from confirm_service.dossier.build import build_dossier
+
+    with database().write() as session:
+        document = build_dossier(session, settings(), candidate_id)
+    return json_response(document)
