@@ -46,16 +46,30 @@ def _postgres_worker_url() -> str:
     return base.set(database=name).render_as_string(hide_password=False)
 
 
+def _drop_postgres(url: str) -> None:
+    target = make_url(url)
+    admin = create_engine(
+        target.set(database=make_url(POSTGRES_URL).database), isolation_level="AUTOCOMMIT"
+    )
+    with admin.connect() as connection:
+        connection.execute(text(f'DROP DATABASE IF EXISTS "{target.database}" WITH (FORCE)'))
+    admin.dispose()
+
+
 @pytest.fixture(scope="session", params=BACKENDS)
-def backend(request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory) -> str:
+def backend(
+    request: pytest.FixtureRequest, tmp_path_factory: pytest.TempPathFactory
+) -> Iterator[str]:
     """A migrated template database URL for the backend under test."""
     if request.param == "sqlite":
         template = tmp_path_factory.mktemp("sqlite-template") / "template.db"
         upgrade_database(f"sqlite:///{template}")
-        return f"sqlite:///{template}"
+        yield f"sqlite:///{template}"
+        return
     url = _postgres_worker_url()
     upgrade_database(url)
-    return url
+    yield url
+    _drop_postgres(url)
 
 
 def _truncate_postgres(url: str) -> None:

@@ -1,3 +1,101 @@
-"""Commands: candidates."""
+"""``confirm-service candidates list|show``: readable tables for coordinators."""
 
-from confirm_service.cli import main  # noqa: F401
+from __future__ import annotations
+
+import click
+
+from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
+from confirm_service.cli import main
+from confirm_service.cli.context import open_database
+from confirm_service.schemas.queries import CandidateQuery
+from confirm_service.services import candidate_views as views
+
+
+def _value(value: float | None, unit: str | None) -> str:
+    if value is None:
+        return "—"
+    text = f"{value:,.3f}" if abs(value) >= 1e5 else f"{value:.6g}"
+    return f"{text} {unit}" if unit else text
+
+
+@main.group("candidates")
+def candidates_group() -> None:
+    """Candidates under confirmation."""
+
+
+@candidates_group.command("list")
+@click.option(
+    "--state", default=None, type=click.Choice(["open", "rejected", "confirmed", "withdrawn"])
+)
+@click.option("--stage", default=None)
+@click.option("--target", default=None)
+@click.option("--site", default=None)
+@click.option("--limit", default=100, show_default=True, type=click.IntRange(1, 1000))
+def list_candidates(state, stage, target, site, limit) -> None:  # type: ignore[no-untyped-def]
+    """One line per candidate."""
+    query = CandidateQuery(state=state, stage=stage, target=target, site=site, limit=limit)
+    database = open_database()
+    with database.read() as session:
+        rows = [views.summary(session, c) for c in views.list_candidates(session, query, limit)]
+    click.echo(
+        f"{'id':>5}  {'state':<10} {'stage':<18} {'target':<14} {'site':<6} "
+        f"{'barycentric Hz':>20} {'residual Hz/s':>14}  reason"
+    )
+    for c in rows:
+        click.echo(
+            f"{c.id:>5}  {c.state:<10} {c.stage:<18} {c.target or '—':<14} {c.site:<6} "
+            f"{c.barycentric_frequency_hz:>20,.3f} {c.residual_drift_hz_s:>+14.5f}  "
+            f"{c.reason_class or ''}"
+        )
+
+
+@candidates_group.command("show")
+@click.argument("candidate_id", type=int)
+def show(candidate_id: int) -> None:
+    """Everything about one candidate: checks with measured and expected values, history."""
+    database = open_database()
+    with database.read() as session:
+        c = views.detail(session, candidate_id)
+    click.echo(
+        f"candidate {c.id}: {c.state} at stage {c.stage!r}; target {c.target}, "
+        f"found at {c.site} {c.reference_time.isoformat()}"
+    )
+    click.echo(f"protocol {c.protocol.name} sha256 {c.protocol.sha256}")
+    click.echo(
+        f"barycentric frequency {c.barycentric_frequency_hz:,.3f} Hz, residual drift "
+        f"{c.residual_drift_hz_s:+.6f} Hz/s"
+    )
+    if c.held:
+        click.echo(f"HELD: {c.hold_reason}")
+    if c.reason:
+        click.echo(f"reason: {c.reason}")
+    click.echo("")
+    click.echo(
+        f"{'check':<20} {'outcome':<15} {'measured':>22} {'expected':>22} {'tolerance':>16}  reason"
+    )
+    for k in c.checks:
+        click.echo(
+            f"{k.kind:<20} {k.outcome:<15} {_value(k.measured, k.unit):>22} "
+            f"{_value(k.expected, k.unit):>22} {_value(k.tolerance, k.unit):>16}  "
+            f"{k.reason}"
+        )
+    click.echo("")
+    click.echo("linked detections:")
+    for d in c.detections:
+        click.echo(
+            f"  {d.id:>8} {d.site:<6} {d.start:%Y-%m-%d %H:%M} {d.frequency_hz:>20,.3f} Hz "
+            f"{d.drift_hz_s:+.5f} Hz/s SNR {d.snr:.1f} ({d.role})"
+        )
+    click.echo("history:")
+    for h in c.history:
+        click.echo(
+            f"  {h.at:%Y-%m-%d %H:%M:%S} {h.from_stage or '—'} → {h.to_stage} "
+            f"[{h.to_state}] by {h.actor}: {h.reason}"
+        )
+    for s in c.signoffs:
+        click.echo(
+            f"  sign-off {s.stage}: {s.person} ({s.role}) "
+            f"{'approves' if s.approve else 'objects'}: {s.rationale}"
+        )
+    click.echo("")
+    click.echo("CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION)

@@ -61,7 +61,12 @@ def physics_context() -> PhysicsContext:
     return context
 
 
-def configured_protocol() -> LoadedProtocol:
+def configured_protocol(session: Session | None = None) -> LoadedProtocol:
+    """The protocol for new candidates: one an admin adopted, else the configured file."""
+    if session is not None:
+        adopted = protocols.active_record(session)
+        if adopted is not None:
+            return protocols.protocol_for(session, adopted.sha256, adopted.bands_sha256)
     return protocols.load_configured(runtime.settings().protocol_file)
 
 
@@ -155,7 +160,7 @@ def create_candidate(
             "the detection's scan has no target",
             [("detection_id", "only detections from scans of a registered target can be followed")],
         )
-    protocol = configured_protocol()
+    protocol = configured_protocol(session)
     protocols.ensure_recorded(session, actor, protocol)
     signal = reference_of(
         (
@@ -239,7 +244,7 @@ def _intake(
 ) -> list[int]:
     if observation.target is None or not rows:
         return []
-    protocol = configured_protocol()
+    protocol = configured_protocol(session)
     chosen = _prefilter(protocol, rows)
     if not chosen:
         return []

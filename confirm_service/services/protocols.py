@@ -125,3 +125,64 @@ def protocol_for(session: Session, sha256: str, bands_sha256: str) -> LoadedProt
     with _lock:
         _by_hash[key] = loaded
     return loaded
+
+
+def active_record(session: Session) -> ProtocolRecord | None:
+    return session.execute(
+        select(ProtocolRecord).where(ProtocolRecord.active.is_(True))
+    ).scalar_one_or_none()
+
+
+def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> int:
+    """Make ``loaded`` govern new candidates and every open one; re-evaluate those now.
+
+    Open candidates restart at the new protocol's stage of the same name when it has one,
+    otherwise at its first stage. Returns how many open candidates moved.
+    """
+    from confirm_service.models import Candidate, StageTransition
+    from confirm_service.services import candidates as candidate_service
+    from confirm_service.timeutil import utc_now
+
+    row = ensure_recorded(session, actor, loaded)
+    mark_active(session, row)
+    names = loaded.model.stage_names()
+    now = utc_now()
+    open_candidates = session.execute(
+        select(Candidate).where(Candidate.state == "open").order_by(Candidate.id).with_for_update()
+    ).scalars()
+    moved = 0
+    for candidate in list(open_candidates):
+        stage = candidate.stage if candidate.stage in names else names[0]
+        session.add(
+            StageTransition(
+                candidate_id=candidate.id,
+                from_stage=candidate.stage,
+                to_stage=stage,
+                from_state="open",
+                to_state="open",
+                reason=f"protocol {loaded.name} {loaded.version} adopted by an administrator",
+                reason_class="protocol_change",
+                actor=actor.name,
+                at=now,
+            )
+        )
+        if stage != candidate.stage:
+            candidate.stage_entered_at = now
+        candidate.stage = stage
+        candidate.protocol_name = loaded.name
+        candidate.protocol_sha256 = loaded.content_sha256
+        candidate.bands_sha256 = loaded.bands_sha256
+        candidate_service.reevaluate(session, actor, candidate, now)
+        moved += 1
+    record(
+        session,
+        actor,
+        "protocol.adopted",
+        f"protocol:{loaded.name}",
+        {
+            "sha256": loaded.content_sha256,
+            "bands_sha256": loaded.bands_sha256,
+            "open_candidates": moved,
+        },
+    )
+    return moved
