@@ -10,7 +10,7 @@ from __future__ import annotations
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import select, update
+from sqlalchemy import insert, select, update
 from sqlalchemy.orm import Session
 
 from confirm_service.audit.canonical import canonical_json
@@ -45,14 +45,17 @@ def leaf_hash_of(entry: AuditEntry) -> bytes:
     return leaf_hash(raw)
 
 
+_ADVANCE_HEAD = (
+    update(AuditHead.__table__)
+    .where(AuditHead.__table__.c.id == 1)
+    .values(size=AuditHead.__table__.c.size + 1)
+    .returning(AuditHead.__table__.c.size)
+)
+_INSERT_ENTRY = insert(AuditEntry.__table__)
+
+
 def _next_seq(session: Session) -> int:
-    statement = (
-        update(AuditHead)
-        .where(AuditHead.id == 1)
-        .values(size=AuditHead.size + 1)
-        .returning(AuditHead.size)
-    )
-    seq = session.execute(statement).scalar_one_or_none()
+    seq = session.connection().execute(_ADVANCE_HEAD).scalar_one_or_none()
     if seq is None:
         session.add(AuditHead(id=1, size=1))
         session.flush()
@@ -62,24 +65,30 @@ def _next_seq(session: Session) -> int:
 
 def record(
     session: Session, actor: Actor, action: str, subject: str, payload: dict[str, Any]
-) -> AuditEntry:
-    """Append one entry describing a change made in the same ``session`` transaction."""
+) -> int:
+    """Append one entry describing a change made in the same ``session`` transaction.
+
+    Returns the entry's ``seq``. The row is written with a Core insert, not through the
+    session's identity map, so that thousands of entries in one transaction stay linear.
+    """
     seq = _next_seq(session)
     at = utc_now()
     payload_text = canonical_json(payload).decode("utf-8")
     raw = entry_bytes(seq, at, actor.name, actor.role, action, subject, payload_text)
-    entry = AuditEntry(
-        seq=seq,
-        at=at,
-        actor=actor.name,
-        role=actor.role,
-        action=action,
-        subject=subject,
-        payload=payload_text,
-        leaf_hash=leaf_hash(raw).hex(),
+    session.connection().execute(
+        _INSERT_ENTRY,
+        {
+            "seq": seq,
+            "at": at,
+            "actor": actor.name,
+            "role": actor.role,
+            "action": action,
+            "subject": subject,
+            "payload": payload_text,
+            "leaf_hash": leaf_hash(raw).hex(),
+        },
     )
-    session.add(entry)
-    return entry
+    return seq
 
 
 def tree_size(session: Session) -> int:
