@@ -8,10 +8,12 @@ scan are read, through the (observation_id, frequency_hz) index.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
-from datetime import timedelta
+from collections.abc import Iterable
+from dataclasses import replace
+from datetime import UTC, datetime, timedelta
+from typing import Any
 
-from sqlalchemy import and_, or_, select
+from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.models import (
@@ -37,6 +39,8 @@ from confirm_service.protocol import (
 from confirm_service.protocol.reference import PhysicsContext
 
 OVERLAP_MARGIN = timedelta(minutes=1)
+MAX_SCAN = timedelta(hours=6)
+"""Longest scan considered when looking for scans that overlap another in time."""
 
 
 def site_fact(site: Site) -> SiteFact:
@@ -68,7 +72,7 @@ def detection_fact(detection: Detection) -> DetectionFact:
 
 
 def observation_fact(
-    observation: Observation, detections: Iterable[Detection] = ()
+    observation: Observation, detections: Iterable[DetectionFact] = ()
 ) -> ObservationFact:
     return ObservationFact(
         id=observation.id,
@@ -85,68 +89,143 @@ def observation_fact(
         on_source=observation.on_source,
         beam=observation.beam,
         cadence=observation.cadence,
-        detections=tuple(detection_fact(d) for d in detections),
+        detections=tuple(detections),
     )
 
 
-def related_observations(
+_SCAN_COLUMNS = (
+    Observation.id,
+    Site.code,
+    Site.latitude_deg,
+    Site.longitude_deg,
+    Site.elevation_m,
+    Target.name,
+    Observation.pointing_ra_deg,
+    Observation.pointing_dec_deg,
+    Observation.start,
+    Observation.duration_s,
+    Observation.frequency_min_hz,
+    Observation.frequency_max_hz,
+    Observation.channel_width_hz,
+    Observation.time_resolution_s,
+    Observation.on_source,
+    Observation.beam,
+    Observation.cadence,
+)
+
+
+def _scan_query():  # type: ignore[no-untyped-def]
+    return (
+        select(*_SCAN_COLUMNS)
+        .join(Site, Site.id == Observation.site_id)
+        .outerjoin(Target, Target.id == Observation.target_id)
+    )
+
+
+def _scan_fact(row: Any) -> ObservationFact:
+    return ObservationFact(
+        id=row[0],
+        site=SiteFact(row[1], row[2], row[3], row[4]),
+        target_name=row[5],
+        pointing_ra_deg=row[6],
+        pointing_dec_deg=row[7],
+        start_unix_s=row[8].timestamp(),
+        duration_s=row[9],
+        frequency_min_hz=row[10],
+        frequency_max_hz=row[11],
+        channel_width_hz=row[12],
+        time_resolution_s=row[13],
+        on_source=row[14],
+        beam=row[15],
+        cadence=row[16],
+    )
+
+
+def related_scans(
     session: Session, target_id: int | None, reference: Observation
-) -> list[Observation]:
-    """Every scan that can bear on a candidate of ``target_id`` found in ``reference``."""
+) -> list[ObservationFact]:
+    """Every scan that can bear on a candidate of ``target_id`` found in ``reference``.
+
+    Column queries straight into facts (no ORM objects): this runs on every evaluation.
+    """
     conditions = [Observation.id == reference.id]
     if target_id is not None:
         conditions.append(Observation.target_id == target_id)
     if reference.cadence:
         conditions.append(Observation.cadence == reference.cadence)
-    direct = list(
-        session.execute(select(Observation).where(or_(*conditions)).order_by(Observation.id))
-        .unique()
-        .scalars()
+    direct = [_scan_fact(row) for row in session.execute(_scan_query().where(or_(*conditions)))]
+    spans = [(o.start_unix_s, o.end_unix_s) for o in direct if o.on_source]
+    if not spans:
+        return direct
+    # Other pointings/beams during the target's on-source scans (multi-beam check).
+    earliest = datetime.fromtimestamp(min(s for s, _ in spans), UTC) - OVERLAP_MARGIN
+    latest = datetime.fromtimestamp(max(e for _, e in spans), UTC) + OVERLAP_MARGIN
+    known = {o.id for o in direct}
+    overlapping = []
+    window = _scan_query().where(
+        Observation.start >= earliest - MAX_SCAN, Observation.start < latest
     )
-    spans = [(o.start, o.start + timedelta(seconds=o.duration_s)) for o in direct if o.on_source]
-    overlapping: list[Observation] = []
-    if spans:
-        # Other pointings/beams during the target's on-source scans (multi-beam check).
-        window_conditions = [
-            and_(
-                Observation.start < end + OVERLAP_MARGIN,
-                Observation.start >= start - timedelta(hours=6),
-            )
-            for start, end in spans
-        ]
-        known = {o.id for o in direct}
-        for candidate in (
-            session.execute(select(Observation).where(or_(*window_conditions))).unique().scalars()
-        ):
-            end = candidate.start + timedelta(seconds=candidate.duration_s)
-            if candidate.id in known:
-                continue
-            if any(candidate.start < e and end > s for s, e in spans):
-                overlapping.append(candidate)
-                known.add(candidate.id)
+    if target_id is not None:
+        window = window.where(
+            or_(Observation.target_id.is_(None), Observation.target_id != target_id)
+        )
+    for row in session.execute(window):
+        scan = _scan_fact(row)
+        if scan.id in known:
+            continue
+        if any(scan.start_unix_s < e and scan.end_unix_s > s for s, e in spans):
+            overlapping.append(scan)
+            known.add(scan.id)
     return direct + overlapping
+
+
+CLUSTER_GAP_HZ = 200_000.0
+"""Windows closer than this share one range query (observation_id IN (...) AND frequency)."""
+
+
+def _clusters(windows: dict[int, tuple[float, float]]) -> list[tuple[float, float, list[int]]]:
+    """Windows merged into frequency clusters: (low, high, observation ids)."""
+    clusters: list[tuple[float, float, list[int]]] = []
+    for observation_id, (low, high) in sorted(windows.items(), key=lambda item: item[1][0]):
+        if clusters and low - clusters[-1][1] <= CLUSTER_GAP_HZ:
+            c_low, c_high, ids = clusters[-1]
+            clusters[-1] = (c_low, max(c_high, high), [*ids, observation_id])
+        else:
+            clusters.append((low, high, [observation_id]))
+    return clusters
+
+
+_DETECTION_COLUMNS = (
+    Detection.id,
+    Detection.observation_id,
+    Detection.frequency_hz,
+    Detection.drift_hz_s,
+    Detection.snr,
+    Detection.time_offset_s,
+    Detection.bandwidth_hz,
+    Detection.beam,
+)
 
 
 def detections_in_windows(
     session: Session, windows: dict[int, tuple[float, float]]
-) -> dict[int, list[Detection]]:
-    """The detections of each scan inside its frequency window, by the frequency index."""
-    found: dict[int, list[Detection]] = {observation_id: [] for observation_id in windows}
-    items = list(windows.items())
-    for start in range(0, len(items), 200):
-        chunk = items[start : start + 200]
-        condition = or_(
-            *(
-                and_(
-                    Detection.observation_id == observation_id,
-                    Detection.frequency_hz >= low,
-                    Detection.frequency_hz <= high,
-                )
-                for observation_id, (low, high) in chunk
+) -> dict[int, list[DetectionFact]]:
+    """The detections of each scan inside its frequency window, by the frequency index.
+
+    One indexed range query per cluster of nearby windows; rows are then kept only if they lie
+    inside their own scan's window.
+    """
+    found: dict[int, list[DetectionFact]] = {observation_id: [] for observation_id in windows}
+    for low, high, ids in _clusters(windows):
+        rows = session.execute(
+            select(*_DETECTION_COLUMNS).where(
+                Detection.observation_id.in_(ids), Detection.frequency_hz.between(low, high)
             )
         )
-        for detection in session.execute(select(Detection).where(condition)).scalars():
-            found[detection.observation_id].append(detection)
+        for row in rows:
+            w_low, w_high = windows[row.observation_id]
+            if w_low <= row.frequency_hz <= w_high:
+                found[row.observation_id].append(DetectionFact(*row))
     for rows in found.values():
         rows.sort(key=lambda d: d.id)
     return found
@@ -198,7 +277,6 @@ def candidate_facts(
     protocol: LoadedProtocol,
     now_unix_s: float,
     context: PhysicsContext | None = None,
-    observations: Sequence[Observation] | None = None,
 ) -> CandidateFacts:
     """Everything the protocol looks at for ``candidate`` as of ``now_unix_s``."""
     detection, reference_observation, target = reference_parts(
@@ -207,12 +285,7 @@ def candidate_facts(
     assert target is not None, "candidates always have a target"
     target_f = target_fact(target)
     reference_f = detection_fact(detection)
-    scans = (
-        list(observations)
-        if observations is not None
-        else related_observations(session, target.id, reference_observation)
-    )
-    bare = {o.id: observation_fact(o) for o in scans}
+    bare = {o.id: o for o in related_scans(session, target.id, reference_observation)}
     windows = search_windows_hz(
         protocol,
         reference_f,
@@ -228,8 +301,7 @@ def candidate_facts(
         if window[1] >= bare[oid].frequency_min_hz and window[0] <= bare[oid].frequency_max_hz
     }
     found = detections_in_windows(session, usable)
-    by_id = {o.id: o for o in scans}
-    facts = {oid: observation_fact(by_id[oid], found.get(oid, ())) for oid in bare}
+    facts = {oid: replace(scan, detections=tuple(found.get(oid, ()))) for oid, scan in bare.items()}
     return CandidateFacts(
         candidate_id=candidate.id,
         target=target_f,
