@@ -1,0 +1,126 @@
+"""independent_site: seen at a distant site at the frequency predicted for that site and time.
+
+A local emitter cannot reach a receiver thousands of km away; a sky-fixed transmitter shows at
+every site that looks, Doppler-shifted by that site's motion (common practice, no source).
+
+A sighting is a linked detection in a target scan or a partner report on the track. The check
+passes when a sighting is at a site at least ``min_distance_km`` (straight line) from the
+reference site and from every site that saw the signal before it. It fails once scans or reports
+from sites that far from every site that has seen it covered the predicted window and saw
+nothing ``max_misses`` times (counting those ending after the reference scan began); it is
+pending until then.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+from confirm_service.protocol.checks._base import CheckParams, PositiveFloat, PositiveInt
+from confirm_service.protocol.results import FAIL, PASS, PENDING, CheckResult
+
+if TYPE_CHECKING:
+    from confirm_service.protocol.facts import CandidateFacts, SiteFact
+    from confirm_service.protocol.matching import CandidateView
+
+KIND = "independent_site"
+
+
+class Params(CheckParams):
+    """Keys of an independent_site check."""
+
+    min_distance_km: PositiveFloat
+    max_misses: PositiveInt
+
+
+@dataclass(frozen=True, slots=True)
+class _Sighting:
+    site: SiteFact
+    unix_s: float
+    label: str
+    offset_hz: float
+
+
+def _sightings(context: CandidateView) -> list[_Sighting]:
+    found = [
+        _Sighting(d.observation.site, d.unix_s, f"detection {d.detection.id}", d.offset_hz)
+        for d in context.target_detections()
+    ]
+    for view in context.reports:
+        if view.present and view.report.frequency_hz is not None:
+            found.append(
+                _Sighting(
+                    view.report.site,
+                    view.report.unix_s,
+                    f"report {view.report.id}",
+                    view.report.frequency_hz - view.predicted_frequency_hz,
+                )
+            )
+    return sorted(found, key=lambda s: (s.unix_s, s.label))
+
+
+def _nearest_km(context: CandidateView, site: SiteFact, others: list[SiteFact]) -> float:
+    return min(context.distance_km(site, other) for other in others)
+
+
+def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> CheckResult:
+    """Look for a sighting at a site far from every site that saw the signal before."""
+    reference_site = context.reference.site
+    sightings = _sightings(context)
+    seen_sites: list[SiteFact] = [reference_site]
+    for sighting in sightings:
+        earlier = [reference_site] + [s.site for s in sightings if s.unix_s < sighting.unix_s]
+        distance = _nearest_km(context, sighting.site, earlier)
+        if distance >= params.min_distance_km:
+            return CheckResult(
+                KIND,
+                PASS,
+                f"Seen at {sighting.site.code}, {distance:.0f} km from every site that saw it "
+                f"before, {sighting.offset_hz:+.1f} Hz from the frequency predicted there.",
+                measured=distance,
+                expected=params.min_distance_km,
+                unit="km",
+                details={"sighting": sighting.label, "site": sighting.site.code},
+            )
+        if sighting.site not in seen_sites:
+            seen_sites.append(sighting.site)
+    misses = _misses(context, seen_sites, params.min_distance_km)
+    details = {"missed": misses, "sites_seen": [s.code for s in seen_sites]}
+    if len(misses) >= params.max_misses:
+        return CheckResult(
+            KIND,
+            FAIL,
+            f"Sites at least {params.min_distance_km:g} km from every site that saw the signal "
+            f"covered the predicted frequency {len(misses)} time(s) and saw nothing.",
+            measured=float(len(misses)),
+            expected=float(params.max_misses),
+            unit="scans",
+            details=details,
+        )
+    return CheckResult(
+        KIND,
+        PENDING,
+        f"Waiting for a site at least {params.min_distance_km:g} km away to observe "
+        f"({len(misses)} of {params.max_misses} allowed misses so far).",
+        details=details,
+    )
+
+
+def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -> list[str]:
+    begin = context.reference_view.observation.start_unix_s
+
+    def _far(context: CandidateView, site: SiteFact) -> bool:
+        return _nearest_km(context, site, seen_sites) >= min_km
+
+    missed = []
+    for view in context.target_scans()[1:]:
+        scan = view.observation
+        ended_after = scan.end_unix_s >= begin
+        if view.covers and not view.present and ended_after and _far(context, scan.site):
+            missed.append(f"scan {scan.id}")
+    for view in context.reports:
+        report = view.report
+        ended_after = report.unix_s + report.duration_s >= begin
+        if view.covers and not view.present and ended_after and _far(context, report.site):
+            missed.append(f"report {report.id}")
+    return missed

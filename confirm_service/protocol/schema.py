@@ -1,0 +1,180 @@
+"""Pydantic v2 models of a protocol file (TOML).
+
+Layout (every numeric key carries its unit)::
+
+    name, version, description          strings
+    interference_bands                  path of the band list, relative to the protocol file
+    [intake]    min_snr, max_abs_drift_hz_s, exclude_interference_bands, require_on_source
+    [matching]  frequency_tolerance_floor_hz, sigma_multiplier,
+                reference_frequency_uncertainty_channels,
+                reference_drift_uncertainty_resolutions, scan_margin_channels
+    [[stages]]  name, description, checks, deadline_hours, on_deadline, contacts, signoffs,
+                on_entry
+
+Each entry of ``checks`` is ``{kind = "<kind>", on_fail = "reject"|"hold", reason_class = ...,
+<the kind's parameters>}``; the kinds come from ``confirm_service.protocol.checks``.
+Cross-key rules (reason_class with reject, deadline pairs, unique names) are checked by
+``confirm_service.protocol.loader`` so that every problem of a file is reported at once.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal, Union
+
+from pydantic import Field, create_model, field_validator
+
+from confirm_service.protocol.checks import REGISTRY, CheckKind
+from confirm_service.protocol.checks._base import (
+    CheckParams,
+    Identifier,
+    NonEmptyStr,
+    NonNegativeFloat,
+    PositiveFloat,
+    PositiveInt,
+    StrictModel,
+)
+
+ON_FAIL_VALUES = ("reject", "hold")
+ON_DEADLINE_VALUES = ("escalate", "expire")
+
+
+def _camel(kind: str) -> str:
+    return "".join(part.capitalize() for part in kind.split("_"))
+
+
+def _check_spec_model(entry: CheckKind) -> type[CheckParams]:
+    """The protocol entry of one kind: its parameters plus kind, on_fail, reason_class."""
+    return create_model(
+        f"{_camel(entry.kind)}CheckSpec",
+        __base__=entry.params_model,
+        __module__=__name__,
+        kind=(Literal[entry.kind], ...),  # type: ignore[valid-type]
+        on_fail=(Literal["reject", "hold"], ...),
+        reason_class=(Identifier | None, None),
+    )
+
+
+CHECK_SPEC_MODELS: dict[str, type[CheckParams]] = {
+    kind: _check_spec_model(entry) for kind, entry in sorted(REGISTRY.items())
+}
+CheckSpec = Annotated[
+    Union[tuple(CHECK_SPEC_MODELS.values())],  # noqa: UP007 -- built from the registry
+    Field(discriminator="kind"),
+]
+
+
+class IntakeRule(StrictModel):
+    """Which pipeline detections become candidates."""
+
+    min_snr: PositiveFloat
+    max_abs_drift_hz_s: PositiveFloat
+    exclude_interference_bands: bool
+    require_on_source: bool = True
+
+
+class MatchingParams(StrictModel):
+    """How wide the predicted track is when linking detections to a candidate.
+
+    Tolerance at time t in a scan with channel width w::
+
+        max(frequency_tolerance_floor_hz, sigma_multiplier * sigma_f(t)) + s(t)
+            + scan_margin_channels * w
+
+    with sigma_f(t) the prediction's 1-sigma frequency uncertainty, grown from the reference's
+    frequency uncertainty (reference_frequency_uncertainty_channels reference channels) and
+    drift uncertainty (reference_drift_uncertainty_resolutions drift resolutions) over |t - t0|,
+    and s(t) the bound on the prediction shortcut's error (``protocol.reference``: per Hz/s of
+    residual drift, about 1.2 Hz one day and 11 Hz thirty days from the reference).
+    """
+
+    frequency_tolerance_floor_hz: PositiveFloat
+    sigma_multiplier: PositiveFloat
+    reference_frequency_uncertainty_channels: PositiveFloat
+    reference_drift_uncertainty_resolutions: PositiveFloat
+    scan_margin_channels: NonNegativeFloat
+
+
+class SignoffRule(StrictModel):
+    """``count`` distinct persons with ``role`` must approve before the stage is left."""
+
+    role: Identifier
+    count: PositiveInt
+
+
+class RequestFollowupAction(StrictModel):
+    """Ask partner sites at least min_distance_km away to observe within window_hours."""
+
+    action: Literal["request_followup"]
+    min_distance_km: PositiveFloat
+    window_hours: PositiveFloat
+    max_sites: PositiveInt | None = None
+    note: str = ""
+
+
+class RequestReobservationAction(StrictModel):
+    """Ask for another on-source scan at least min_gap_hours later, within window_hours."""
+
+    action: Literal["request_reobservation"]
+    min_gap_hours: PositiveFloat
+    window_hours: PositiveFloat
+    note: str = ""
+
+
+class NotifyAction(StrictModel):
+    """Tell named contacts that the candidate entered the stage."""
+
+    action: Literal["notify"]
+    contacts: list[NonEmptyStr] = Field(min_length=1)
+    note: str = ""
+
+
+ActionSpec = Annotated[
+    RequestFollowupAction | RequestReobservationAction | NotifyAction,
+    Field(discriminator="action"),
+]
+ACTION_KINDS = ("notify", "request_followup", "request_reobservation")
+
+
+class StageModel(StrictModel):
+    """One stage: the checks to pass, sign-offs to collect, a deadline, actions on entry."""
+
+    name: Identifier
+    description: NonEmptyStr
+    checks: list[CheckSpec] = []
+    deadline_hours: PositiveFloat | None = None
+    on_deadline: Literal["escalate", "expire"] | None = None
+    contacts: list[NonEmptyStr] = []
+    signoffs: list[SignoffRule] = []
+    on_entry: list[ActionSpec] = []
+
+    @field_validator("signoffs", mode="before")
+    @classmethod
+    def _single_table_is_a_list_of_one(cls, value: Any) -> Any:
+        return [value] if isinstance(value, dict) else value
+
+
+class ProtocolModel(StrictModel):
+    """A whole protocol file."""
+
+    name: NonEmptyStr
+    version: NonEmptyStr
+    description: NonEmptyStr
+    interference_bands: NonEmptyStr | None = None
+    intake: IntakeRule
+    matching: MatchingParams
+    stages: list[StageModel] = Field(min_length=1)
+
+    def stage_names(self) -> tuple[str, ...]:
+        """Stage names in order."""
+        return tuple(stage.name for stage in self.stages)
+
+    def stage_index(self, name: str) -> int:
+        """Position of stage ``name``; KeyError if the protocol has no such stage."""
+        for index, stage in enumerate(self.stages):
+            if stage.name == name:
+                return index
+        raise KeyError(f"protocol {self.name!r} has no stage {name!r}")
+
+    def first_stage(self) -> StageModel:
+        """The stage a new candidate enters."""
+        return self.stages[0]
