@@ -86,7 +86,7 @@ def validate_database_url(url: str) -> str:
     backend = parsed.get_backend_name()
     if backend not in ("sqlite", "postgresql"):
         raise ConfigError(f"database URL {url!r}: backend {backend!r} is not supported")
-    if backend == "postgresql" and parsed.get_driver_name() not in ("psycopg", "psycopg2"):
+    if parsed.drivername == "postgresql":  # no driver named: use psycopg 3, which is installed
         url = parsed.set(drivername="postgresql+psycopg").render_as_string(hide_password=False)
     return url
 
