@@ -23,6 +23,8 @@ from confirm_service.schemas.candidates import (
     DecisionIn,
     HoldReleaseIn,
     PromoteIn,
+    ReportIn,
+    ReportOut,
     SignOffIn,
     SignOffOut,
     WithdrawIn,
@@ -193,3 +195,33 @@ def dossier(candidate_id: int) -> Response:
     with database().write() as session:
         document = build_dossier(session, settings(), candidate_id)
     return json_response(document)
+
+
+@bp.post("/<int:candidate_id>/reports")
+@documented(
+    "A partner site reports its follow-up look: seen (frequency, drift) or not, over a band",
+    request=ReportIn,
+    response=ReportOut,
+    status=201,
+    error_statuses=(401, 403, 404, 415, 422),
+    tag="candidates",
+)
+@roles("site", "coordinator")
+def report(candidate_id: int) -> Response:
+    data = parse_body(ReportIn)
+    with database().write() as session:
+        row = service.add_report(session, current_actor(), candidate_id, data)
+        body = ReportOut(
+            id=row.id,
+            site=data.site,
+            observed_at=row.observed_at,
+            duration_s=row.duration_s,
+            detected=row.detected,
+            frequency_hz=row.frequency_hz,
+            drift_hz_s=row.drift_hz_s,
+            frequency_min_hz=row.frequency_min_hz,
+            frequency_max_hz=row.frequency_max_hz,
+            notes=row.notes,
+            received_at=row.received_at,
+        )
+    return json_response(body, 201)

@@ -133,7 +133,9 @@ def authenticate_request() -> Response | None:
                 [("Authorization", "invalid token")],
                 challenge,
             )
-        g.actor = Actor(name=token.name, role=token.role, token_id=token.id)
+        g.actor = Actor(
+            name=token.name, role=token.role, token_id=token.id, site_code=token.site_code
+        )
         g.token_site_code = token.site_code
         stale = tokens.needs_last_used_update(token)
         token_id = token.id

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, Field
+from pydantic import AwareDatetime, BaseModel, Field, StrictBool, model_validator
+from pydantic_core import PydanticCustomError
 
 from confirm_service.schemas.common import StrictModel, UtcIso
 
@@ -69,6 +70,54 @@ class SignOffOut(BaseModel):
     at: UtcIso
 
 
+class FollowUpOut(BaseModel):
+    """An intent the protocol recorded (request a follow-up, re-observation, notify...)."""
+
+    id: int
+    kind: str
+    stage: str
+    status: str
+    site: str | None
+    payload: dict[str, Any]
+    created_at: UtcIso
+
+
+class ReportIn(StrictModel):
+    """A partner site's report: it observed the target and did or did not see the signal."""
+
+    site: Annotated[str, Field(min_length=1, max_length=32)]
+    observed_at: AwareDatetime
+    duration_s: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    detected: StrictBool
+    frequency_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = None
+    drift_hz_s: Annotated[float, Field(allow_inf_nan=False)] | None = None
+    frequency_min_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    frequency_max_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    notes: Annotated[str, Field(max_length=10_000)] | None = None
+
+    @model_validator(mode="after")
+    def _consistent(self) -> ReportIn:
+        if self.frequency_max_hz <= self.frequency_min_hz:
+            raise PydanticCustomError("band", "frequency_max_hz must exceed frequency_min_hz")
+        if self.detected and (self.frequency_hz is None or self.drift_hz_s is None):
+            raise PydanticCustomError("detected", "a detection needs frequency_hz and drift_hz_s")
+        return self
+
+
+class ReportOut(BaseModel):
+    id: int
+    site: str
+    observed_at: UtcIso
+    duration_s: float
+    detected: bool
+    frequency_hz: float | None
+    drift_hz_s: float | None
+    frequency_min_hz: float
+    frequency_max_hz: float
+    notes: str | None
+    received_at: UtcIso
+
+
 class CandidateSummary(BaseModel):
     id: int
     state: str
@@ -95,6 +144,8 @@ class CandidateOut(CandidateSummary):
     history: list[TransitionOut]
     comments: list[CommentOut] = []
     signoffs: list[SignOffOut] = []
+    followups: list[FollowUpOut] = []
+    reports: list[ReportOut] = []
     decision_checkpoint_size: int | None = None
     caution: str
 

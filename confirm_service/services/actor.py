@@ -10,6 +10,7 @@ class Actor:
     name: str
     role: str
     token_id: int | None = None
+    site_code: str | None = None
 
 
 SYSTEM = Actor(name="confirm-service", role="system")

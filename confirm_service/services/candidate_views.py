@@ -14,6 +14,8 @@ from confirm_service.models import (
     CheckResult,
     Comment,
     Detection,
+    FollowUpReport,
+    FollowUpRequest,
     Observation,
     SignOff,
     Site,
@@ -25,8 +27,10 @@ from confirm_service.schemas.candidates import (
     CandidateSummary,
     CheckOut,
     CommentOut,
+    FollowUpOut,
     LinkedDetection,
     ProtocolRef,
+    ReportOut,
     SignOffOut,
     TransitionOut,
 )
@@ -185,6 +189,7 @@ def detail(session: Session, candidate_id: int) -> CandidateOut:
             select(Comment).where(Comment.candidate_id == candidate_id).order_by(Comment.id)
         ).scalars()
     ]
+    site_codes = dict(session.execute(select(Site.id, Site.code)).all())
     signoffs = [
         SignOffOut(
             id=s.id,
@@ -199,8 +204,46 @@ def detail(session: Session, candidate_id: int) -> CandidateOut:
             select(SignOff).where(SignOff.candidate_id == candidate_id).order_by(SignOff.id)
         ).scalars()
     ]
+    followups = [
+        FollowUpOut(
+            id=f.id,
+            kind=f.kind,
+            stage=f.stage,
+            status=f.status,
+            site=site_codes.get(f.site_id) if f.site_id else None,
+            payload=f.payload,
+            created_at=f.created_at,
+        )
+        for f in session.execute(
+            select(FollowUpRequest)
+            .where(FollowUpRequest.candidate_id == candidate_id)
+            .order_by(FollowUpRequest.id)
+        ).scalars()
+    ]
+    reports = [
+        ReportOut(
+            id=r.id,
+            site=site_codes.get(r.site_id, "?"),
+            observed_at=r.observed_at,
+            duration_s=r.duration_s,
+            detected=r.detected,
+            frequency_hz=r.frequency_hz,
+            drift_hz_s=r.drift_hz_s,
+            frequency_min_hz=r.frequency_min_hz,
+            frequency_max_hz=r.frequency_max_hz,
+            notes=r.notes,
+            received_at=r.received_at,
+        )
+        for r in session.execute(
+            select(FollowUpReport)
+            .where(FollowUpReport.candidate_id == candidate_id)
+            .order_by(FollowUpReport.id)
+        ).scalars()
+    ]
     return CandidateOut(
         **base.model_dump(),
+        followups=followups,
+        reports=reports,
         checks=checks,
         detections=linked_detections(session, candidate_id),
         history=history,

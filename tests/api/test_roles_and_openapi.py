@@ -37,6 +37,7 @@ EXPECTED_ROLES = {
     ("POST", "/api/v1/candidates/<int:candidate_id>/decision"): {"coordinator", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/release-hold"): {"coordinator", "admin"},
     ("GET", "/api/v1/candidates/<int:candidate_id>/dossier"): ALL,
+    ("POST", "/api/v1/candidates/<int:candidate_id>/reports"): {"site", "coordinator", "admin"},
     ("GET", "/api/v1/predictions"): ALL,
     ("GET", "/api/v1/audit/checkpoints"): ALL,
     ("POST", "/api/v1/audit/checkpoints"): {"coordinator", "admin"},
