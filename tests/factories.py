@@ -5,24 +5,10 @@ from __future__ import annotations
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
-SITE_NORTH = {
-    "code": "PRA",
-    "name": "Pell Ridge Array",
-    "latitude_deg": 38.52,
-    "longitude_deg": -107.31,
-    "elevation_m": 2410.0,
-    "min_elevation_deg": 15.0,
-    "sun_avoidance_deg": 10.0,
-    "email": "ops@pell-ridge.example",
-}
-SITE_SOUTH = {
-    "code": "TFO",
-    "name": "Tamsin Flats Observatory",
-    "latitude_deg": -31.21,
-    "longitude_deg": 118.93,
-    "elevation_m": 310.0,
-    "webhook_url": "https://tamsin-flats.example/hooks/confirm",
-}
+from confirm_service.demo import SITES as DEMO_SITES
+
+SITE_NORTH = dict(DEMO_SITES[0])
+SITE_SOUTH = dict(DEMO_SITES[1])
 TARGET = {"name": "Kestrel-7", "ra_deg": 201.365, "dec_deg": 12.42}
 
 START = datetime(2026, 11, 20, 3, 0, tzinfo=UTC)

@@ -146,6 +146,32 @@ def _same_signal_candidate(
     return None
 
 
+def add_history(
+    session: Session,
+    actor: Actor,
+    candidate_id: int,
+    stages: tuple[str | None, str],
+    states: tuple[str | None, str],
+    reason: str,
+    reason_class: str | None = None,
+    at: datetime | None = None,
+) -> None:
+    """One line of a candidate's history: (from, to) stage and state, why, by whom, when."""
+    session.add(
+        StageTransition(
+            candidate_id=candidate_id,
+            from_stage=stages[0],
+            to_stage=stages[1],
+            from_state=states[0],
+            to_state=states[1],
+            reason=reason,
+            reason_class=reason_class,
+            actor=actor.name,
+            at=at or utc_now(),
+        )
+    )
+
+
 def create_candidate(
     session: Session,
     actor: Actor,
@@ -199,18 +225,8 @@ def create_candidate(
             role="reference",
         )
     )
-    session.add(
-        StageTransition(
-            candidate_id=candidate.id,
-            from_stage=None,
-            to_stage=stage,
-            from_state=None,
-            to_state="open",
-            reason=f"created ({origin})" + (f": {note}" if note else ""),
-            actor=actor.name,
-            at=now,
-        )
-    )
+    reason = f"created ({origin})" + (f": {note}" if note else "")
+    add_history(session, actor, candidate.id, (None, stage), (None, "open"), reason, at=now)
     record(
         session,
         actor,
@@ -462,19 +478,16 @@ def _record_transitions(
     session: Session, actor: Actor, candidate: Candidate, evaluation: Evaluation
 ) -> bool:
     for transition in evaluation.transitions:
-        at = datetime.fromtimestamp(transition.unix_s, UTC) if transition.unix_s else utc_now()
-        session.add(
-            StageTransition(
-                candidate_id=candidate.id,
-                from_stage=transition.from_stage,
-                to_stage=transition.to_stage,
-                from_state=transition.from_state,
-                to_state=transition.to_state,
-                reason=transition.reason,
-                reason_class=transition.reason_class,
-                actor=actor.name,
-                at=at,
-            )
+        at = datetime.fromtimestamp(transition.unix_s, UTC) if transition.unix_s else None
+        add_history(
+            session,
+            actor,
+            candidate.id,
+            (transition.from_stage, transition.to_stage),
+            (transition.from_state, transition.to_state),
+            transition.reason,
+            transition.reason_class,
+            at,
         )
         record(
             session,
@@ -611,19 +624,14 @@ def decide(
         )
     candidate = locked_candidate(session, candidate_id)
     _require_open(candidate)
-    now = utc_now()
-    session.add(
-        StageTransition(
-            candidate_id=candidate.id,
-            from_stage=candidate.stage,
-            to_stage=candidate.stage,
-            from_state=candidate.state,
-            to_state=decision,
-            reason=rationale,
-            reason_class="person",
-            actor=actor.name,
-            at=now,
-        )
+    add_history(
+        session,
+        actor,
+        candidate.id,
+        (candidate.stage, candidate.stage),
+        (candidate.state, decision),
+        rationale,
+        "person",
     )
     record(
         session,

@@ -139,7 +139,7 @@ def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> in
     Open candidates restart at the new protocol's stage of the same name when it has one,
     otherwise at its first stage. Returns how many open candidates moved.
     """
-    from confirm_service.models import Candidate, StageTransition
+    from confirm_service.models import Candidate
     from confirm_service.services import candidates as candidate_service
     from confirm_service.timeutil import utc_now
 
@@ -153,18 +153,15 @@ def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> in
     moved = 0
     for candidate in list(open_candidates):
         stage = candidate.stage if candidate.stage in names else names[0]
-        session.add(
-            StageTransition(
-                candidate_id=candidate.id,
-                from_stage=candidate.stage,
-                to_stage=stage,
-                from_state="open",
-                to_state="open",
-                reason=f"protocol {loaded.name} {loaded.version} adopted by an administrator",
-                reason_class="protocol_change",
-                actor=actor.name,
-                at=now,
-            )
+        candidate_service.add_history(
+            session,
+            actor,
+            candidate.id,
+            (candidate.stage, stage),
+            ("open", "open"),
+            f"protocol {loaded.name} {loaded.version} adopted by an administrator",
+            "protocol_change",
+            now,
         )
         if stage != candidate.stage:
             candidate.stage_entered_at = now
