@@ -66,7 +66,7 @@ from confirm_service.protocol.results import (
 )
 from confirm_service.protocol.schema import ProtocolModel, StageModel
 
-EVALUATION_CHUNK = 1024
+EVALUATION_CHUNK = 64
 
 
 def _model(protocol: Any) -> ProtocolModel:

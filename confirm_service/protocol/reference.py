@@ -9,7 +9,8 @@ detection at site A, time t_A (v: barycentric correction, D = 1 + v/c, a = dv/dt
                         drift_B = rate D_B^2 + (f_bary + rate * gap) a_B / c
 
 with the same physics functions (doppler.py) that ``physics.predict_signal`` uses, and v, a from
-the physics TrackCache interpolants (``TrackCache.kinematics``, one call per candidate).
+the physics TrackCache interpolants (``TrackCache.kinematics``: one call serves a whole batch of
+candidates, every point of every scan and report vectorised).
 
 Fast barycentric gap. ``physics.barycentric_gap_s`` (astropy light-travel time) costs tens of
 ms per call, too slow per candidate. Since d(t_b)/dt = D (cycles conserved), the gap is taken as
@@ -156,7 +157,8 @@ def _target_key(target: TargetFact) -> tuple[Any, ...]:
 class PhysicsContext:
     """Physics objects reused across candidates: TrackCache, locations, targets, distances.
 
-    Not meant to be shared between threads; ``default_physics_context()`` gives one per thread.
+    Not meant to be shared between threads (its small caches take no lock);
+    ``default_physics_context()`` gives one per thread.
     """
 
     def __init__(self, cache: Any | None = None, max_entries: int = 4096) -> None:
@@ -211,17 +213,6 @@ class PhysicsContext:
             self._known_distances.clear()
         self._known_distances[(site_a, site_b)] = distance
         return distance
-
-    def kinematics(
-        self,
-        target: TargetFact,
-        sites: Sequence[SiteFact],
-        site_index: np.ndarray,
-        unix_s: np.ndarray,
-    ) -> tuple[np.ndarray, np.ndarray]:
-        """Radial velocity (m/s) and acceleration (m/s^2) at points (sites[site_index], unix_s)."""
-        requests = [self.track_request(site, target) for site in sites]
-        return self.cache.kinematics(requests, site_index, unix_s)
 
 
 _THREAD_STATE = threading.local()

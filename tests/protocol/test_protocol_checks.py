@@ -390,3 +390,28 @@ def test_search_window_holds_the_truth_and_widens_with_the_gap(
         widths[round(gap_h)] = high - low
     # a day later the window is wider by ~2 x 3 x (86400 s x 0.01 Hz/s) + the swept band
     assert widths[max(widths)] > 10.0 * widths[0]
+
+
+def test_intake_rule(sky_fixed, default_protocol):
+    """The [intake] rule of default.toml: SNR >= 10, |drift| <= 10 Hz/s, on-source scans of a
+    target, outside listed bands."""
+    from confirm_service.protocol import intake_decision
+
+    facts = sky_fixed.facts
+    detection, scan, target = facts.reference, facts.reference_observation, facts.target
+    assert intake_decision(default_protocol, detection, scan, target).promote
+    cases = {
+        "low_snr": (replace(detection, snr=9.99), scan, target),
+        "drift_out_of_range": (replace(detection, drift_hz_s=-10.01), scan, target),
+        "off_source": (detection, replace(scan, on_source=False), target),
+        "no_target": (detection, scan, None),
+        "outside_scan_band": (
+            replace(detection, frequency_hz=scan.frequency_max_hz + 1.0),
+            scan,
+            target,
+        ),
+    }
+    for reason_class, (d, o, t) in cases.items():
+        decision = intake_decision(default_protocol, d, o, t)
+        assert not decision.promote and decision.reason_class == reason_class, reason_class
+    assert intake_decision(default_protocol, replace(detection, snr=10.0), scan, target).promote

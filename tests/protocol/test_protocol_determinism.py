@@ -109,3 +109,27 @@ def test_longer_independent_site_distance_stops_exactly_the_closer_pairs(
     assert changed == expected
     for name in changed:
         assert after[name][:2] == ("open", "independent_site")
+
+
+def test_batched_and_streamed_evaluation_equal_one_at_a_time(
+    default_protocol, injection_scenarios, physics_context
+):
+    import gc
+
+    from confirm_service.protocol import evaluate_many, iter_evaluations
+
+    facts = [s.facts for s in injection_scenarios.values()] * 3
+    one_by_one = [evaluate(default_protocol, f, physics_context=physics_context) for f in facts]
+    assert (
+        evaluate_many(default_protocol, facts, physics_context=physics_context, chunk_size=5)
+        == one_by_one
+    )
+    streamed = list(
+        iter_evaluations(
+            default_protocol, iter(facts), physics_context=physics_context, chunk_size=4
+        )
+    )
+    assert streamed == one_by_one
+    assert gc.isenabled()
+    paused = evaluate_many(default_protocol, facts, physics_context=physics_context, pause_gc=True)
+    assert paused == one_by_one and gc.isenabled()

@@ -250,7 +250,11 @@ scan_margin_channels = 1.0
 [[stages]]
 name = "first"
 description = "drift only"
-checks = [{ kind = "nonzero_drift", resolution_multiplier = 1.0, on_fail = "reject", reason_class = "zero_drift" }]
+[[stages.checks]]
+kind = "nonzero_drift"
+resolution_multiplier = 1.0
+on_fail = "reject"
+reason_class = "zero_drift"
 [[stages]]
 name = "last"
 description = "nothing to do"
