@@ -344,8 +344,37 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
         "detections": detections,
         "candidates": len(result.candidates),
     }
+    _write_and_check_dossier(app, result)
     app.extensions["confirm.db"].dispose()
     return result
+
+
+def _write_and_check_dossier(app: Any, result: DemoResult) -> None:
+    """Dossier of the candidate that went furthest, verified offline; then the whole log."""
+    from confirm_service.audit.checkpoints import service_public_key
+    from confirm_service.audit.verify import verify_log
+    from confirm_service.dossier.build import build_dossier
+    from confirm_service.dossier.render import write_dossier
+    from confirm_service.dossier.verify import verify_dossier
+
+    db = app.extensions["confirm.db"]
+    settings = app.extensions["confirm.settings"]
+    best = max(result.candidates, key=lambda c: (c["state"] == "confirmed", len(c["history"])))
+    with db.write() as session:
+        document = build_dossier(session, settings, best["id"])
+    result.dossier = result.folder / f"dossier-{best['id']}"
+    write_dossier(document, result.dossier)
+    public_pem, _ = service_public_key(settings)
+    report = verify_dossier(result.dossier, public_pem)
+    with db.read() as session:
+        log_report = verify_log(session, public_pem)
+    result.audit = {
+        "dossier_ok": report.ok,
+        "dossier_checked": report.checked,
+        "log_ok": log_report.ok,
+        "entries": log_report.entries_checked,
+        "checkpoints": log_report.checkpoints_checked,
+    }
 
 
 def format_value(value: float | None, unit: str | None) -> str:
