@@ -3,9 +3,12 @@
 Run: ``python benchmarks/bench_ingest.py [--batches 4] [--batch-size 50000] [--database-url URL]``
 
 The service path is the whole request through the Flask app in-process (JSON parsing, pydantic
-validation, band/time checks, id allocation, insert, audit entry, idempotency record, commit).
-The reference is ``connection.execute(insert(detections), rows)`` of the same rows into a fresh
-database with the same schema and indexes. Both run on SQLite by default.
+validation, band/time checks, id allocation, insert, audit entry, idempotency record, candidate
+intake, commit). As a pipeline does, each batch carries one scan's detections, and each scan is
+registered first (not timed). The reference is ``connection.execute(insert(detections), rows)``
+of the same rows into the same scans of a fresh database with the same schema and indexes.
+Both run on SQLite. ``--same-scan`` sends every batch to one scan instead (a harder case for the
+frequency index).
 """
 
 from __future__ import annotations
@@ -17,6 +20,7 @@ import tempfile
 import time
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 from sqlalchemy import insert
@@ -47,14 +51,33 @@ def make_rows(count: int, seed: int) -> list[dict]:
     ]
 
 
-def prepare(url: str) -> tuple[object, str, int]:
+SCAN = {
+    "site": "BNC",
+    "target": "Bench-1",
+    "duration_s": 300.0,
+    "frequency_min_hz": 1.40e9,
+    "frequency_max_hz": 1.45e9,
+    "channel_width_hz": 2.79,
+    "time_resolution_s": 18.25,
+    "on_source": True,
+}
+
+
+def scan_start(index: int) -> datetime:
+    return START + timedelta(minutes=6 * index)
+
+
+def prepare(url: str, scans: int) -> tuple[Any, dict[str, str], list[int]]:
+    """A fresh service with a site, a target and ``scans`` registered scans (not timed)."""
     upgrade_database(url)
     app = create_app({"database_url": url, "instance_path": Path(tempfile.mkdtemp())})
     db: Database = app.extensions["confirm.db"]
     with db.write() as session:
         _, secret = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
+        _, admin = create_token(session, SYSTEM, "bench-admin", "admin")
     client = app.test_client()
     headers = {"Authorization": f"Bearer {secret}"}
+    admin_headers = {"Authorization": f"Bearer {admin}"}
     site = {
         "code": "BNC",
         "name": "Bench Site",
@@ -62,41 +85,31 @@ def prepare(url: str) -> tuple[object, str, int]:
         "longitude_deg": 20.0,
         "elevation_m": 100.0,
     }
-    with db.write() as session:
-        _, admin = create_token(session, SYSTEM, "bench-admin", "admin")
-    admin_headers = {"Authorization": f"Bearer {admin}"}
     client.post("/api/v1/sites", json=site, headers=admin_headers)
     client.post(
         "/api/v1/targets",
         json={"name": "Bench-1", "ra_deg": 12.0, "dec_deg": 30.0},
         headers=admin_headers,
     )
-    scan = {
-        "site": "BNC",
-        "target": "Bench-1",
-        "start": START.isoformat(),
-        "duration_s": 300.0,
-        "frequency_min_hz": 1.40e9,
-        "frequency_max_hz": 1.45e9,
-        "channel_width_hz": 2.79,
-        "time_resolution_s": 18.25,
-        "on_source": True,
-    }
-    observation_id = client.post("/api/v1/observations", json=scan, headers=headers).get_json()[
-        "id"
-    ]
-    return client, headers, observation_id
+    ids = []
+    for index in range(scans):
+        body = {**SCAN, "start": scan_start(index).isoformat()}
+        ids.append(client.post("/api/v1/observations", json=body, headers=headers).get_json()["id"])
+    return client, headers, ids
 
 
-def bench_service(url: str, batches: list[bytes]) -> float:
-    client, headers, observation_id = prepare(url)
-    path = f"/api/v1/observations/{observation_id}/detections"
+def bench_service(url: str, batches: list[bytes], same_scan: bool) -> float:
+    client, headers, scan_ids = prepare(url, 1 if same_scan else len(batches))
     total = 0.0
     for index, body in enumerate(batches):
+        observation_id = scan_ids[0 if same_scan else index]
         request_headers = {**headers, "Idempotency-Key": f"bench-{index}"}
         began = time.perf_counter()
         response = client.post(
-            path, data=body, content_type="application/json", headers=request_headers
+            f"/api/v1/observations/{observation_id}/detections",
+            data=body,
+            content_type="application/json",
+            headers=request_headers,
         )
         total += time.perf_counter() - began
         if response.status_code != 201:
@@ -106,34 +119,38 @@ def bench_service(url: str, batches: list[bytes]) -> float:
     return total
 
 
-def bench_core(url: str, batches: list[list[dict]]) -> float:
+def bench_core(url: str, batches: list[list[dict]], same_scan: bool) -> float:
+    from confirm_service.models import Observation, Site
+
     upgrade_database(url)
     db = Database(url)
     with db.write() as session:
-        from confirm_service.models import Observation, Site
-
         site = Site(
             code="BNC", name="Bench", latitude_deg=10.0, longitude_deg=20.0, elevation_m=100.0
         )
         session.add(site)
         session.flush()
-        observation = Observation(
-            site_id=site.id,
-            pointing_ra_deg=12.0,
-            pointing_dec_deg=30.0,
-            start=START,
-            duration_s=300.0,
-            frequency_min_hz=1.40e9,
-            frequency_max_hz=1.45e9,
-            channel_width_hz=2.79,
-            time_resolution_s=18.25,
-            on_source=True,
-        )
-        session.add(observation)
+        scans = [
+            Observation(
+                site_id=site.id,
+                pointing_ra_deg=12.0,
+                pointing_dec_deg=30.0,
+                start=scan_start(i),
+                duration_s=300.0,
+                frequency_min_hz=1.40e9,
+                frequency_max_hz=1.45e9,
+                channel_width_hz=2.79,
+                time_resolution_s=18.25,
+                on_source=True,
+            )
+            for i in range(1 if same_scan else len(batches))
+        ]
+        session.add_all(scans)
         session.flush()
-        observation_id = observation.id
+        scan_ids = [o.id for o in scans]
     total = 0.0
-    for rows in batches:
+    for index, rows in enumerate(batches):
+        observation_id = scan_ids[0 if same_scan else index]
         values = [
             {
                 **row,
@@ -156,17 +173,23 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--batches", type=int, default=4)
     parser.add_argument("--batch-size", type=int, default=50_000)
+    parser.add_argument(
+        "--same-scan",
+        action="store_true",
+        help="send every batch to one scan instead of one batch per scan",
+    )
     args = parser.parse_args()
     row_batches = [make_rows(args.batch_size, seed) for seed in range(args.batches)]
     bodies = [json.dumps({"detections": rows}).encode() for rows in row_batches]
     count = args.batches * args.batch_size
     with tempfile.TemporaryDirectory() as folder:
-        service_s = bench_service(f"sqlite:///{folder}/service.db", bodies)
-        core_s = bench_core(f"sqlite:///{folder}/core.db", row_batches)
+        service_s = bench_service(f"sqlite:///{folder}/service.db", bodies, args.same_scan)
+        core_s = bench_core(f"sqlite:///{folder}/core.db", row_batches, args.same_scan)
     service_rate = count / service_s
     core_rate = count / core_s
     print(
         f"detections                 : {count:,} in {args.batches} batches of {args.batch_size:,}"
+        f" ({'all into one scan' if args.same_scan else 'one batch per scan'})"
     )
     print(f"service path (HTTP, SQLite): {service_s:8.3f} s  {service_rate:12,.0f} detections/s")
     print(f"raw SQLAlchemy Core insert : {core_s:8.3f} s  {core_rate:12,.0f} detections/s")

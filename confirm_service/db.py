@@ -31,6 +31,9 @@ def _install_sqlite_pragmas(engine: Engine) -> None:
         cursor.execute("PRAGMA busy_timeout=30000")
         cursor.execute("PRAGMA synchronous=NORMAL")
         cursor.execute("PRAGMA cache_size=-65536")  # 64 MiB of page cache per connection
+        # Checkpoint the WAL every ~64 MiB instead of every 4 MiB: bulk ingest spends less time
+        # copying pages back into the database file during commits.
+        cursor.execute("PRAGMA wal_autocheckpoint=16384")
         cursor.close()
 
     @event.listens_for(engine, "begin")
