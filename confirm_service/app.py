@@ -14,6 +14,7 @@ from confirm_service.services import protocols, runtime
 
 
 def _blueprints() -> list[Any]:
+    from confirm_service import web
     from confirm_service.api import (
         audit,
         candidates,
@@ -24,7 +25,16 @@ def _blueprints() -> list[Any]:
         targets,
     )
 
-    return [meta.bp, sites.bp, targets.bp, observations.bp, candidates.bp, physics.bp, audit.bp]
+    return [
+        meta.bp,
+        sites.bp,
+        targets.bp,
+        observations.bp,
+        candidates.bp,
+        physics.bp,
+        audit.bp,
+        web.bp,
+    ]
 
 
 def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:

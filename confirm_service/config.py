@@ -42,6 +42,7 @@ class Settings:
     smtp_port: int = 25
     mail_from: str = "confirm-service@localhost"
     checkpoint_interval_s: float = 3600.0
+    secret_key: str = field(default="", repr=False)
 
     @property
     def is_sqlite(self) -> bool:

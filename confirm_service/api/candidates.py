@@ -128,7 +128,7 @@ def comment(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator", "site", "viewer")
+@roles("coordinator", "site")
 def signoff(candidate_id: int) -> Response:
     data = parse_body(SignOffIn)
     with database().write() as session:

@@ -41,7 +41,7 @@ def _utc(unix_s: float) -> str:
     return datetime.fromtimestamp(unix_s, UTC).isoformat()
 
 
-def _predicted_tracks(session: Session, candidate: Any) -> tuple[list[dict], list[dict]]:
+def predicted_tracks(session: Session, candidate: Any) -> tuple[list[dict], list[dict]]:
     """Per related scan, the predicted track; per linked detection, observed vs predicted."""
     protocol = candidate_service.protocol_of(session, candidate)
     context = candidate_service.physics_context()
@@ -196,7 +196,7 @@ def build_dossier(session: Session, settings: Settings, candidate_id: int) -> di
     """
     candidate = get_candidate(session, candidate_id)
     record = detail(session, candidate_id).model_dump(mode="json")
-    scans, comparisons = _predicted_tracks(session, candidate)
+    scans, comparisons = predicted_tracks(session, candidate)
     history = [
         {
             "evaluation": c.evaluation,

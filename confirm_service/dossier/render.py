@@ -6,7 +6,7 @@ from __future__ import annotations
 import hashlib
 import html
 import json
-from datetime import datetime
+from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
@@ -47,8 +47,8 @@ def _svg_panel(
         f'<text x="{PAD}" y="14" font-size="12">{html.escape(title)}</text>',
         f'<text x="4" y="{PLOT_H / 2}" font-size="10">{html.escape(unit)}</text>',
         f'<text x="{PAD}" y="{PLOT_H - 8}" font-size="10">{y0:.6g} … {y1:.6g} {unit}; '
-        f"time {datetime.fromtimestamp(x0).isoformat(timespec='minutes')} → "
-        f"{datetime.fromtimestamp(x1).isoformat(timespec='minutes')}</text>",
+        f"time {datetime.fromtimestamp(x0, UTC).isoformat(timespec='minutes')} → "
+        f"{datetime.fromtimestamp(x1, UTC).isoformat(timespec='minutes')}</text>",
     ]
     for track in tracks:
         upper = " ".join(f"{sx(x):.1f},{sy(y + s):.1f}" for x, y, s in track)

@@ -28,12 +28,7 @@ EXPECTED_ROLES = {
     ("GET", "/api/v1/candidates/<int:candidate_id>"): ALL,
     ("POST", "/api/v1/candidates/<int:candidate_id>/withdraw"): {"coordinator", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/comments"): {"coordinator", "site", "admin"},
-    ("POST", "/api/v1/candidates/<int:candidate_id>/signoffs"): {
-        "coordinator",
-        "site",
-        "viewer",
-        "admin",
-    },
+    ("POST", "/api/v1/candidates/<int:candidate_id>/signoffs"): {"coordinator", "site", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/decision"): {"coordinator", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/release-hold"): {"coordinator", "admin"},
     ("GET", "/api/v1/candidates/<int:candidate_id>/dossier"): ALL,

@@ -1,0 +1,203 @@
+"""Dashboard sign-in: an API token pasted once, its id kept in Flask's signed session cookie.
+
+The service has no passwords. A person signs in with their API token; the session remembers the
+token's id (never the secret) and is checked against the database on every request, so a revoked
+token ends its sessions at once. Every POST carries a per-session CSRF token.
+"""
+
+from __future__ import annotations
+
+import functools
+import hmac
+import os
+import secrets
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any, TypeVar
+
+from flask import Flask, abort, current_app, g, request, session
+
+from confirm_service.config import ConfigError, Settings
+from confirm_service.db import Database
+from confirm_service.models import ApiToken
+from confirm_service.services import tokens
+from confirm_service.services.actor import Actor
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+SECRET_KEY_FILE = "dashboard-secret-key"
+MIN_SECRET_KEY_CHARS = 32
+SESSION_MAX_AGE_S = 12 * 3600.0
+"""A dashboard session ends 12 hours after sign-in, whatever the browser keeps."""
+
+TOKEN_ID_KEY = "token_id"
+SIGNED_IN_AT_KEY = "signed_in_unix_s"
+CSRF_KEY = "csrf"
+CSRF_FIELD = "csrf_token"
+
+READ_ROLES = ("viewer", "pipeline", "site", "coordinator", "admin")
+SIGNOFF_ROLES = ("coordinator", "site")
+COMMENT_ROLES = ("coordinator", "site")
+DECISION_ROLES = ("coordinator",)
+HOLD_ROLES = ("coordinator",)
+
+
+# --- the key that signs session cookies ------------------------------------------------------
+
+
+def _stored_secret_key(instance_path: Path) -> str:
+    """The key in the instance folder, created once (atomically, safe across workers)."""
+    path = instance_path / SECRET_KEY_FILE
+    if not path.exists():
+        instance_path.mkdir(parents=True, exist_ok=True)
+        draft = instance_path / f".{SECRET_KEY_FILE}.{os.getpid()}.{secrets.token_hex(4)}"
+        descriptor = os.open(draft, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(descriptor, "w", encoding="ascii") as handle:
+            handle.write(secrets.token_urlsafe(48))
+        try:
+            os.link(draft, path)  # fails if another worker was first: then use theirs
+        except FileExistsError:
+            pass
+        finally:
+            draft.unlink()
+    key = path.read_text(encoding="ascii").strip()
+    if len(key) < MIN_SECRET_KEY_CHARS:
+        raise ConfigError(f"{path}: the dashboard secret key is shorter than 32 characters")
+    return key
+
+
+def secret_key_for(settings: Settings) -> str:
+    """``settings.secret_key`` (CONFIRM_SECRET_KEY) if set, else the instance folder's key."""
+    configured = str(getattr(settings, "secret_key", "") or "")
+    if configured:
+        if len(configured) < MIN_SECRET_KEY_CHARS:
+            raise ConfigError("secret_key must be at least 32 characters long")
+        return configured
+    return _stored_secret_key(settings.instance_path)
+
+
+def configure_app(app: Flask) -> None:
+    """Give ``app`` a session-signing key and strict session-cookie settings (once)."""
+    if not app.secret_key:
+        app.secret_key = secret_key_for(app.extensions["confirm.settings"])
+    if app.config.get("SESSION_COOKIE_SAMESITE") is None:
+        app.config["SESSION_COOKIE_SAMESITE"] = "Lax"
+    if app.config.get("SESSION_COOKIE_PATH") is None:
+        app.config["SESSION_COOKIE_PATH"] = "/dashboard"  # never sent to the API
+    app.config["SESSION_COOKIE_HTTPONLY"] = True
+
+
+# --- CSRF ------------------------------------------------------------------------------------
+
+
+def csrf_token() -> str:
+    """This session's CSRF token, created on first use."""
+    token = session.get(CSRF_KEY)
+    if not isinstance(token, str) or not token:
+        token = session[CSRF_KEY] = secrets.token_urlsafe(32)
+    return token
+
+
+def check_csrf() -> None:
+    """Refuse (400) a form whose hidden CSRF field is missing or differs from the session's."""
+    expected = session.get(CSRF_KEY)
+    sent = request.form.get(CSRF_FIELD, "")
+    if not isinstance(expected, str) or not expected or not sent:
+        abort(400, description="the form's security token is missing; reload the page")
+    if not hmac.compare_digest(expected.encode(), sent.encode()):
+        abort(400, description="the form's security token does not match; reload the page")
+
+
+# --- sessions --------------------------------------------------------------------------------
+
+
+def _database() -> Database:
+    return current_app.extensions["confirm.db"]
+
+
+def sign_in(secret: str) -> ApiToken | None:
+    """Check the pasted token; on success start a fresh session for it and return it."""
+    secret = secret.strip()
+    if not secret:
+        return None
+    with _database().read() as db_session:
+        token = tokens.authenticate(db_session, secret)
+    if token is None:
+        return None
+    session.clear()  # a new session id-space: nothing from before sign-in survives
+    session[TOKEN_ID_KEY] = token.id
+    session[SIGNED_IN_AT_KEY] = time.time()
+    csrf_token()
+    return token
+
+
+def sign_out() -> None:
+    session.clear()
+
+
+def _forget_token() -> None:
+    for key in (TOKEN_ID_KEY, SIGNED_IN_AT_KEY):
+        session.pop(key, None)
+
+
+def _session_is_fresh() -> bool:
+    started = session.get(SIGNED_IN_AT_KEY)
+    if not isinstance(started, int | float):
+        return False
+    return 0.0 <= time.time() - started <= SESSION_MAX_AGE_S
+
+
+def load_signed_in_actor() -> Actor | None:
+    """The actor of this session's token, in ``g.actor``; None if signed out or revoked."""
+    token_id = session.get(TOKEN_ID_KEY)
+    if not isinstance(token_id, int) or not _session_is_fresh():
+        _forget_token()
+        return None
+    database = _database()
+    with database.read() as db_session:
+        token = db_session.get(ApiToken, token_id)
+        if token is None or token.revoked_at is not None:
+            _forget_token()
+            return None
+        actor = Actor(name=token.name, role=token.role, token_id=token.id)
+        stale = tokens.needs_last_used_update(token)
+    if stale:
+        with database.write() as db_session:
+            tokens.touch(db_session, token_id)
+    g.actor = actor
+    return actor
+
+
+def current_actor() -> Actor:
+    return g.actor
+
+
+def may(actor: Actor, allowed: tuple[str, ...]) -> bool:
+    """Whether ``actor`` has one of the ``allowed`` roles (admin always may)."""
+    return actor.role == "admin" or actor.role in allowed
+
+
+def requires_role(*allowed: str) -> Callable[[F], F]:
+    """Answer 403 (an HTML page) unless the signed-in token has one of ``allowed`` roles."""
+
+    def decorate(view: F) -> F:
+        @functools.wraps(view)
+        def wrapper(*args: Any, **kwargs: Any) -> Any:
+            if not may(current_actor(), allowed):
+                abort(403, description=f"role {current_actor().role!r} may not do this")
+            return view(*args, **kwargs)
+
+        wrapper.allowed_roles = allowed  # type: ignore[attr-defined]
+        return wrapper  # type: ignore[return-value]
+
+    return decorate
+
+
+def safe_next(target: str | None) -> str | None:
+    """``target`` if it is a path inside the dashboard (no open redirects), else None."""
+    if not target or not target.startswith("/dashboard") or target.startswith("//"):
+        return None
+    if "\\" in target or any(ord(ch) < 32 for ch in target):
+        return None
+    return target
