@@ -6,94 +6,15 @@ from __future__ import annotations
 import hashlib
 import html
 import json
-from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
-PLOT_W, PLOT_H, PAD = 640, 220, 48
-
-
-def _svg_panel(
-    title: str,
-    unit: str,
-    tracks: list[list[tuple[float, float, float]]],
-    points: list[tuple[float, float]],
-) -> str:
-    """A small inline SVG: predicted tracks (line and ±1σ band) and observed points."""
-    xs = [x for track in tracks for x, _, _ in track] + [x for x, _ in points]
-    ys = [y + s for track in tracks for _, y, s in track] + [
-        y - s for track in tracks for _, y, s in track
-    ]
-    ys += [y for _, y in points]
-    if not xs or not ys:
-        return ""
-    x0, x1 = min(xs), max(xs)
-    y0, y1 = min(ys), max(ys)
-    x1 = x1 if x1 > x0 else x0 + 1
-    margin = (y1 - y0) * 0.1 or max(abs(y0) * 1e-3, 1e-6)
-    y0, y1 = y0 - margin, y1 + margin
-
-    def sx(x: float) -> float:
-        return PAD + (x - x0) / (x1 - x0) * (PLOT_W - 2 * PAD)
-
-    def sy(y: float) -> float:
-        return PLOT_H - PAD + (y - y0) / (y1 - y0) * (2 * PAD - PLOT_H)
-
-    parts = [
-        f'<svg viewBox="0 0 {PLOT_W} {PLOT_H}" width="{PLOT_W}" height="{PLOT_H}" '
-        f'role="img" aria-label="{html.escape(title)}">',
-        f'<rect x="{PAD}" y="{PAD / 2}" width="{PLOT_W - 2 * PAD}" '
-        f'height="{PLOT_H - 1.5 * PAD}" fill="none" stroke="#999"/>',
-        f'<text x="{PAD}" y="14" font-size="12">{html.escape(title)}</text>',
-        f'<text x="4" y="{PLOT_H / 2}" font-size="10">{html.escape(unit)}</text>',
-        f'<text x="{PAD}" y="{PLOT_H - 8}" font-size="10">{y0:.6g} … {y1:.6g} {unit}; '
-        f"time {datetime.fromtimestamp(x0, UTC).isoformat(timespec='minutes')} → "
-        f"{datetime.fromtimestamp(x1, UTC).isoformat(timespec='minutes')}</text>",
-    ]
-    for track in tracks:
-        upper = " ".join(f"{sx(x):.1f},{sy(y + s):.1f}" for x, y, s in track)
-        lower = " ".join(f"{sx(x):.1f},{sy(y - s):.1f}" for x, y, s in reversed(track))
-        parts.append(f'<polygon points="{upper} {lower}" fill="#9cc3e6" opacity="0.5"/>')
-        line = " ".join(f"{sx(x):.1f},{sy(y):.1f}" for x, y, _ in track)
-        parts.append(f'<polyline points="{line}" fill="none" stroke="#1f5f99" stroke-width="1.5"/>')
-    for x, y in points:
-        parts.append(f'<circle cx="{sx(x):.1f}" cy="{sy(y):.1f}" r="3.5" fill="#c0392b"/>')
-    parts.append("</svg>")
-    return "".join(parts)
-
-
-def _ts(text: str) -> float:
-    return datetime.fromisoformat(text).timestamp()
+from confirm_service.dossier.plots import site_residual_panels
 
 
 def site_plots(dossier: dict[str, Any]) -> dict[str, str]:
-    """Per site: frequency (offset from the reference, Hz) and drift against predicted tracks."""
-    reference_hz = dossier["candidate"]["barycentric_frequency_hz"]
-    plots: dict[str, str] = {}
-    for site in sorted({scan["site"] for scan in dossier["scans"]}):
-        scans = [s for s in dossier["scans"] if s["site"] == site and s["on_source"]]
-        found = [p for p in dossier["predictions"] if p["site"] == site]
-        if not scans and not found:
-            continue
-        f_tracks = [
-            [
-                (_ts(t["time"]), t["frequency_hz"] - reference_hz, t["frequency_sigma_hz"])
-                for t in s["track"]
-            ]
-            for s in scans
-        ]
-        f_points = [(_ts(p["time"]), p["observed_frequency_hz"] - reference_hz) for p in found]
-        d_tracks = [[(_ts(t["time"]), t["drift_hz_s"], 0.0) for t in s["track"]] for s in scans]
-        d_points = [(_ts(p["time"]), p["observed_drift_hz_s"]) for p in found]
-        plots[site] = _svg_panel(
-            f"{site}: observed frequency (dots) and predicted track, minus {reference_hz:,.3f} Hz",
-            "Hz",
-            f_tracks,
-            f_points,
-        ) + _svg_panel(
-            f"{site}: observed drift (dots) and predicted drift", "Hz/s", d_tracks, d_points
-        )
-    return plots
+    """Per site: each linked detection's frequency and drift against its prediction (SVG)."""
+    return site_residual_panels(dossier["predictions"])
 
 
 def _table(rows: list[dict[str, Any]], columns: list[str]) -> str:
