@@ -7,16 +7,21 @@ from __future__ import annotations
 
 import os
 import tomllib
-from dataclasses import dataclass, field, fields, replace
+from dataclasses import field, fields, replace
 from pathlib import Path
-from typing import Any
+from typing import Annotated, Any
 
+from pydantic import Field, ValidationError
+from pydantic.dataclasses import dataclass
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError
 
 PACKAGE_DIR = Path(__file__).resolve().parent
 PROJECT_DIR = PACKAGE_DIR.parent
 DEFAULT_PROTOCOL_FILE = PROJECT_DIR / "protocols" / "default.toml"
+
+
+_OPTIONAL_PATHS = ("signing_key_file", "ephemeris_file")
 
 
 class ConfigError(Exception):
@@ -32,16 +37,16 @@ class Settings:
     protocol_file: Path = DEFAULT_PROTOCOL_FILE
     signing_key_file: Path | None = None
     ephemeris_file: Path | None = None
-    max_batch_detections: int = 50_000
-    max_body_bytes: int = 64 * 1024 * 1024
-    clock_skew_allowance_s: float = 300.0
-    page_limit_default: int = 100
-    page_limit_max: int = 1_000
+    max_batch_detections: Annotated[int, Field(gt=0)] = 50_000
+    max_body_bytes: Annotated[int, Field(gt=0)] = 64 * 1024 * 1024
+    clock_skew_allowance_s: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 300.0
+    page_limit_default: Annotated[int, Field(gt=0)] = 100
+    page_limit_max: Annotated[int, Field(gt=0)] = 1_000
     service_origin: str = "confirm-service"
     smtp_host: str = "127.0.0.1"
-    smtp_port: int = 25
+    smtp_port: Annotated[int, Field(gt=0, lt=65536)] = 25
     mail_from: str = "confirm-service@localhost"
-    checkpoint_interval_s: float = 3600.0
+    checkpoint_interval_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 3600.0
     secret_key: str = field(default="", repr=False)
 
     @property
@@ -53,29 +58,19 @@ class Settings:
 
 
 _ENV_PREFIX = "CONFIRM_"
-_INT_FIELDS = {"max_batch_detections", "max_body_bytes", "page_limit_default", "page_limit_max"}
-_INT_FIELDS |= {"smtp_port"}
-_FLOAT_FIELDS = {"clock_skew_allowance_s", "checkpoint_interval_s"}
-_PATH_FIELDS = {"instance_path", "protocol_file", "signing_key_file", "ephemeris_file"}
 
 
-def _coerce(name: str, value: Any, origin: str) -> Any:
+def _build(values: dict[str, Any], origins: dict[str, str]) -> Settings:
+    """Validate with pydantic; the first bad field becomes a one-line :class:`ConfigError`."""
     try:
-        if name in _INT_FIELDS:
-            number = int(value)
-            if number <= 0:
-                raise ValueError
-            return number
-        if name in _FLOAT_FIELDS:
-            number = float(value)
-            if not number >= 0:
-                raise ValueError
-            return number
-        if name in _PATH_FIELDS:
-            return Path(value) if value not in (None, "") else None
-        return str(value)
-    except (TypeError, ValueError):
-        raise ConfigError(f"{origin}: {value!r} is not a valid value for {name}") from None
+        return Settings(**values)
+    except ValidationError as exc:
+        error = exc.errors(include_url=False)[0]
+        name = str(error["loc"][0]) if error["loc"] else "?"
+        origin = origins.get(name, "setting")
+        raise ConfigError(
+            f"{origin}: {values.get(name)!r} is not a valid value for {name} ({error['msg']})"
+        ) from None
 
 
 def validate_database_url(url: str) -> str:
@@ -99,6 +94,7 @@ def load_settings(
     environ = dict(os.environ if environ is None else environ)
     known = {f.name for f in fields(Settings)}
     values: dict[str, Any] = {}
+    origins: dict[str, str] = {}
     config_file = environ.get(_ENV_PREFIX + "CONFIG_FILE")
     if config_file:
         try:
@@ -108,16 +104,19 @@ def load_settings(
         for key, value in raw.items():
             if key not in known:
                 raise ConfigError(f"config file {config_file}: unknown setting {key!r}")
-            values[key] = _coerce(key, value, f"config file {config_file}")
+            values[key], origins[key] = value, f"config file {config_file}"
     for name in known:
         env_name = _ENV_PREFIX + name.upper()
         if env_name in environ:
-            values[name] = _coerce(name, environ[env_name], env_name)
+            values[name], origins[name] = environ[env_name], env_name
     for key, value in (overrides or {}).items():
         if key not in known:
             raise ConfigError(f"unknown setting {key!r}")
-        values[key] = _coerce(key, value, "override") if isinstance(value, str) else value
-    settings = replace(Settings(), **values)
+        values[key], origins[key] = value, "override"
+    for name in _OPTIONAL_PATHS:
+        if values.get(name) == "":
+            values[name] = None
+    settings = _build(values, origins)
     if not settings.database_url:
         db_file = settings.instance_path / "confirm-service.db"
         settings = replace(settings, database_url=f"sqlite:///{db_file}")
