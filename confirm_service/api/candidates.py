@@ -97,6 +97,7 @@ def withdraw(candidate_id: int) -> Response:
     data = parse_body(WithdrawIn)
     with database().write() as session:
         service.withdraw(session, current_actor(), candidate_id, data.rationale)
+    with database().read() as session:  # after commit: the decision's checkpoint is signed
         body = views.detail(session, candidate_id)
     return json_response(body)
 
@@ -160,6 +161,7 @@ def decision(candidate_id: int) -> Response:
     data = parse_body(DecisionIn)
     with database().write() as session:
         service.decide(session, current_actor(), candidate_id, data.decision, data.rationale)
+    with database().read() as session:  # after commit: the decision's checkpoint is signed
         body = views.detail(session, candidate_id)
     return json_response(body)
 
@@ -177,6 +179,7 @@ def release_hold(candidate_id: int) -> Response:
     data = parse_body(HoldReleaseIn)
     with database().write() as session:
         service.release_hold(session, current_actor(), candidate_id, data.rationale)
+    with database().read() as session:  # after commit: the decision's checkpoint is signed
         body = views.detail(session, candidate_id)
     return json_response(body)
 

@@ -12,7 +12,7 @@ from collections.abc import Sequence
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
-from sqlalchemy import and_, func, or_, select
+from sqlalchemy import and_, event, func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.audit.log import record
@@ -520,14 +520,38 @@ def _apply_state(candidate: Candidate, evaluation: Evaluation) -> None:
         candidate.reason = evaluation.transitions[-1].reason
 
 
+_PENDING_CHECKPOINT = "confirm.checkpoint_for"
+
+
 def take_decision_checkpoint(session: Session, candidate: Candidate, reason: str) -> None:
-    """Sign a checkpoint covering everything written so far, and pin it to the candidate."""
+    """Ask for a signed checkpoint when this transaction commits, pinned to the candidate.
+
+    However many candidates change in one transaction, one checkpoint is signed, just before
+    commit, covering every entry the transaction wrote (computing a root reads the whole log).
+    """
+    session.info.setdefault(_PENDING_CHECKPOINT, {})[candidate.id] = (candidate, reason)
+
+
+@event.listens_for(Session, "after_rollback")
+def _forget_pending_checkpoint(session: Session) -> None:
+    session.info.pop(_PENDING_CHECKPOINT, None)
+
+
+@event.listens_for(Session, "before_commit")
+def _sign_pending_checkpoint(session: Session) -> None:
+    pending = session.info.pop(_PENDING_CHECKPOINT, None)
+    if not pending:
+        return
     from confirm_service.audit.checkpoints import take_checkpoint
 
     session.flush()
-    checkpoint = take_checkpoint(session, runtime.settings(), reason)
-    if candidate.state != "open":
-        candidate.decision_checkpoint_size = checkpoint.tree_size
+    reasons = [reason for _, reason in pending.values()]
+    reason = reasons[0] if len(reasons) == 1 else f"{len(reasons)} candidate decisions"
+    checkpoint = take_checkpoint(session, runtime.settings(), reason[:64])
+    for candidate, _ in pending.values():
+        if candidate.state != "open":
+            candidate.decision_checkpoint_size = checkpoint.tree_size
+    session.flush()
 
 
 def reevaluate(
