@@ -27,7 +27,8 @@ from confirm_service.audit.checkpoints import (
     checkpoint_document,
     latest_checkpoint,
 )
-from confirm_service.audit.merkle import consistency_proof, inclusion_proof
+from confirm_service.audit.merkle import consistency_proof
+from confirm_service.audit.tree_cache import builder_for_checkpoint
 from confirm_service.models import AuditCheckpoint
 from confirm_service.services.errors import Conflict, Invalid, NotFound
 
@@ -95,14 +96,16 @@ def prove_inclusion(session: Session, seq: int, tree_size: int | None = None) ->
             "ask for a newer checkpoint",
             [("tree_size", f"checkpoint covers entries 1..{size}")],
         )
-    hashes = store.load_leaf_hashes(session, size)
-    path = inclusion_proof(hashes, seq - 1, size)
+    builder = builder_for_checkpoint(
+        size, checkpoint.root_hash, lambda: store.load_leaf_hashes(session, size)
+    )
+    path = builder.path(seq - 1)
     return InclusionProof(
         seq=seq,
         leaf_index=seq - 1,
         tree_size=size,
         leaf_input=entry.leaf_input().decode("utf-8"),
-        leaf_hash_hex=hashes[seq - 1].hex(),
+        leaf_hash_hex=builder.leaves[seq - 1].hex(),
         audit_path_hex=[node.hex() for node in path],
         entry=entry.as_dict(),
         checkpoint=checkpoint_document(checkpoint),

@@ -16,9 +16,9 @@ from confirm_service.audit.checkpoints import (
     service_public_key,
     take_checkpoint,
 )
+from confirm_service.audit.tree_cache import ProofBuilder
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.config import Settings
-from confirm_service.dossier.proofs import ProofBuilder
 from confirm_service.models import (
     AuditEntry,
     CandidateDetection,

@@ -14,8 +14,8 @@ from cryptography.hazmat.primitives.serialization import Encoding, PublicFormat
 
 from confirm_service.audit.checkpoints import service_public_key
 from confirm_service.audit.merkle import inclusion_proof, leaf_hash
+from confirm_service.audit.tree_cache import ProofBuilder
 from confirm_service.dossier.build import build_dossier
-from confirm_service.dossier.proofs import ProofBuilder
 from confirm_service.dossier.render import write_dossier
 from confirm_service.dossier.verify import verify_dossier
 from tests.services.test_candidate_flow import post_scenario

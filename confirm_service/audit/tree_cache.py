@@ -1,13 +1,16 @@
 """Many RFC 6962 inclusion proofs over one tree, sharing subtree hashes.
 
 ``merkle.inclusion_proof`` rehashes the tree per proof; a dossier needs dozens of proofs of the
-same tree, so subtree roots MTH(D[start:end]) are memoised here (the recursion is RFC 6962
-section 2.1.1's PATH, unchanged).
+same tree and partners ask for many proofs against the same checkpoint, so subtree roots
+MTH(D[start:end]) are memoised here (the recursion is RFC 6962 section 2.1.1's PATH, unchanged).
+:func:`builder_for_checkpoint` keeps the builders of the last few checkpoints in memory.
 """
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Sequence
 from functools import cache
 
 from confirm_service.audit.merkle import node_hash, root_from_leaf_hashes
@@ -54,3 +57,30 @@ class ProofBuilder:
                 siblings.append(self._subtree(start, start + k))
                 start = start + k
         return list(reversed(siblings))
+
+
+_CACHE_SIZE = 4
+_cache: OrderedDict[tuple[int, str], ProofBuilder] = OrderedDict()
+_cache_lock = threading.Lock()
+
+
+def builder_for_checkpoint(
+    tree_size: int, root_hash_hex: str, load: Callable[[], Sequence[bytes]]
+) -> ProofBuilder:
+    """The builder of the tree a checkpoint signed; ``load`` reads its leaf hashes if needed.
+
+    A freshly loaded tree is cached only if its root is the signed one, so proofs from the
+    cache are always proofs of the signed tree.
+    """
+    key = (tree_size, root_hash_hex)
+    with _cache_lock:
+        if key in _cache:
+            _cache.move_to_end(key)
+            return _cache[key]
+    builder = ProofBuilder(load())
+    if builder.root().hex() == root_hash_hex:
+        with _cache_lock:
+            _cache[key] = builder
+            while len(_cache) > _CACHE_SIZE:
+                _cache.popitem(last=False)
+    return builder
