@@ -6,6 +6,7 @@ A malformed value stops start-up with :class:`ConfigError`, whose message is one
 from __future__ import annotations
 
 import os
+import sys
 import tomllib
 from dataclasses import field, fields, replace
 from pathlib import Path
@@ -18,7 +19,12 @@ from sqlalchemy.exc import ArgumentError
 
 PACKAGE_DIR = Path(__file__).resolve().parent
 PROJECT_DIR = PACKAGE_DIR.parent
-DEFAULT_PROTOCOL_FILE = PROJECT_DIR / "protocols" / "default.toml"
+_SOURCE_PROTOCOLS = PROJECT_DIR / "protocols"
+_INSTALLED_PROTOCOLS = Path(sys.prefix) / "share" / "confirm-service" / "protocols"
+DEFAULT_PROTOCOL_FILE = (
+    _SOURCE_PROTOCOLS if _SOURCE_PROTOCOLS.is_dir() else _INSTALLED_PROTOCOLS
+) / "default.toml"
+"""The shipped default protocol: from the source tree, or where a wheel install put it."""
 
 
 _OPTIONAL_PATHS = ("signing_key_file", "ephemeris_file")
