@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import math
 from collections.abc import Sequence
 from datetime import datetime, timedelta
 from typing import Any
@@ -162,7 +161,7 @@ def ingest_detections(
             f"{len(rows)} detections in one batch; the limit is {max_batch}",
             [("detections", f"at most {max_batch} per request")],
         )
-    observation = session.get(Observation, observation_id, with_for_update=False)
+    observation = session.get(Observation, observation_id)
     if observation is None:
         raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
     errors = detection_errors(rows, observation)
@@ -183,12 +182,6 @@ def ingest_detections(
     )
     candidate_ids = _trigger_candidates(session, actor, observation, rows, ids)
     return ids, candidate_ids
-
-
-def _finite_or_invalid(value: float, field: str) -> float:
-    if not math.isfinite(value):
-        raise Invalid("not a finite number", [(field, "must be a finite number")])
-    return value
 
 
 def create_observation(
@@ -212,8 +205,8 @@ def create_observation(
     observation = Observation(
         site_id=site.id,
         target_id=target.id if target else None,
-        pointing_ra_deg=_finite_or_invalid(ra, "pointing_ra_deg"),
-        pointing_dec_deg=_finite_or_invalid(dec, "pointing_dec_deg"),
+        pointing_ra_deg=ra,  # finite: validated, or from a registered target
+        pointing_dec_deg=dec,
         start=data.start,
         duration_s=data.duration_s,
         frequency_min_hz=data.frequency_min_hz,
