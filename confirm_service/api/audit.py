@@ -28,6 +28,7 @@ from confirm_service.schemas.audit import (
 )
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.queries import ListQuery
+from confirm_service.services import access
 from confirm_service.services.errors import NotFound
 
 bp = Blueprint("audit", __name__, url_prefix="/api/v1/audit")
@@ -78,7 +79,7 @@ def latest_checkpoint() -> Response:
     error_statuses=(401, 403, 409, 415, 422),
     tag="audit",
 )
-@roles("coordinator")
+@roles(*access.CHECKPOINT)
 def take_checkpoint() -> Response:
     data = parse_body(CheckpointIn) if request.content_length else CheckpointIn()
     with database().write() as session:

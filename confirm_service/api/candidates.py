@@ -31,10 +31,17 @@ from confirm_service.schemas.candidates import (
 )
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.queries import CandidateQuery
+from confirm_service.services import access
 from confirm_service.services import candidate_views as views
 from confirm_service.services import candidates as service
 
 bp = Blueprint("candidates", __name__, url_prefix="/api/v1/candidates")
+
+
+def _detail_after_commit(candidate_id: int) -> Response:
+    """The candidate as it stands once the write committed (its checkpoint is then signed)."""
+    with database().read() as session:
+        return json_response(views.detail(session, candidate_id))
 
 
 @bp.get("")
@@ -73,7 +80,7 @@ def get_candidate(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator", "pipeline")
+@roles(*access.PROMOTE)
 def promote() -> Response:
     data = parse_body(PromoteIn)
     with database().write() as session:
@@ -92,14 +99,12 @@ def promote() -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator")
+@roles(*access.DECIDE)
 def withdraw(candidate_id: int) -> Response:
     data = parse_body(WithdrawIn)
     with database().write() as session:
         service.withdraw(session, current_actor(), candidate_id, data.rationale)
-    with database().read() as session:  # after commit: the decision's checkpoint is signed
-        body = views.detail(session, candidate_id)
-    return json_response(body)
+    return _detail_after_commit(candidate_id)
 
 
 @bp.post("/<int:candidate_id>/comments")
@@ -111,12 +116,12 @@ def withdraw(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 415, 422),
     tag="candidates",
 )
-@roles("coordinator", "site")
+@roles(*access.COMMENT)
 def comment(candidate_id: int) -> Response:
     data = parse_body(CommentIn)
     with database().write() as session:
         row = service.add_comment(session, current_actor(), candidate_id, data.text)
-        body = CommentOut(id=row.id, author=row.author, role=row.role, text=row.text, at=row.at)
+        body = CommentOut.model_validate(row)
     return json_response(body, 201)
 
 
@@ -129,22 +134,14 @@ def comment(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator", "site")
+@roles(*access.SIGNOFF)
 def signoff(candidate_id: int) -> Response:
     data = parse_body(SignOffIn)
     with database().write() as session:
         row = service.add_signoff(
             session, current_actor(), candidate_id, data.approve, data.rationale, data.person
         )
-        body = SignOffOut(
-            id=row.id,
-            stage=row.stage,
-            role=row.role,
-            person=row.person,
-            approve=row.approve,
-            rationale=row.rationale,
-            at=row.at,
-        )
+        body = SignOffOut.model_validate(row)
     return json_response(body, 201)
 
 
@@ -156,14 +153,12 @@ def signoff(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator")
+@roles(*access.DECIDE)
 def decision(candidate_id: int) -> Response:
     data = parse_body(DecisionIn)
     with database().write() as session:
         service.decide(session, current_actor(), candidate_id, data.decision, data.rationale)
-    with database().read() as session:  # after commit: the decision's checkpoint is signed
-        body = views.detail(session, candidate_id)
-    return json_response(body)
+    return _detail_after_commit(candidate_id)
 
 
 @bp.post("/<int:candidate_id>/release-hold")
@@ -174,14 +169,12 @@ def decision(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 409, 415, 422),
     tag="candidates",
 )
-@roles("coordinator")
+@roles(*access.RELEASE_HOLD)
 def release_hold(candidate_id: int) -> Response:
     data = parse_body(HoldReleaseIn)
     with database().write() as session:
         service.release_hold(session, current_actor(), candidate_id, data.rationale)
-    with database().read() as session:  # after commit: the decision's checkpoint is signed
-        body = views.detail(session, candidate_id)
-    return json_response(body)
+    return _detail_after_commit(candidate_id)
 
 
 @bp.get("/<int:candidate_id>/dossier")
@@ -209,22 +202,10 @@ def dossier(candidate_id: int) -> Response:
     error_statuses=(401, 403, 404, 415, 422),
     tag="candidates",
 )
-@roles("site", "coordinator")
+@roles(*access.REPORT)
 def report(candidate_id: int) -> Response:
     data = parse_body(ReportIn)
     with database().write() as session:
         row = service.add_report(session, current_actor(), candidate_id, data)
-        body = ReportOut(
-            id=row.id,
-            site=data.site,
-            observed_at=row.observed_at,
-            duration_s=row.duration_s,
-            detected=row.detected,
-            frequency_hz=row.frequency_hz,
-            drift_hz_s=row.drift_hz_s,
-            frequency_min_hz=row.frequency_min_hz,
-            frequency_max_hz=row.frequency_max_hz,
-            notes=row.notes,
-            received_at=row.received_at,
-        )
+        body = views.report_out(row, data.site)
     return json_response(body, 201)

@@ -12,7 +12,7 @@ from pydantic import BaseModel, TypeAdapter, ValidationError
 
 from confirm_service.api.problems import problem_response, validation_errors
 from confirm_service.db import Database
-from confirm_service.services import tokens
+from confirm_service.services import access, tokens
 from confirm_service.services.actor import Actor
 from confirm_service.services.errors import ServiceError
 
@@ -167,4 +167,4 @@ def roles(*allowed: str) -> Callable[[F], F]:
     return decorate
 
 
-READ_ROLES = ("viewer", "pipeline", "site", "coordinator", "admin")
+READ_ROLES = access.READ

@@ -31,7 +31,7 @@ from confirm_service.schemas.log import (
     ObservationOut,
 )
 from confirm_service.schemas.queries import ListQuery, ObservationQuery
-from confirm_service.services import idempotency
+from confirm_service.services import access, idempotency
 from confirm_service.services import observations as service
 
 bp = Blueprint("observations", __name__, url_prefix="/api/v1/observations")
@@ -78,7 +78,7 @@ def _idempotent(produce: Callable[[Any], tuple[int, dict[str, Any]]]) -> Respons
     headers=IDEMPOTENCY_HEADER,
     error_statuses=(401, 403, 404, 413, 415, 422),
 )
-@roles("pipeline")
+@roles(*access.INGEST)
 def create_observation() -> Response:
     data = parse_body(ObservationIn)
     config = settings()
@@ -148,7 +148,7 @@ def list_detections(observation_id: int) -> Response:
     headers=IDEMPOTENCY_HEADER,
     error_statuses=(401, 403, 404, 413, 415, 422),
 )
-@roles("pipeline")
+@roles(*access.INGEST)
 def ingest_detections(observation_id: int) -> Response:
     batch = parse_body(DETECTION_BATCH)
     config = settings()

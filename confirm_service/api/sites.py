@@ -19,6 +19,7 @@ from confirm_service.api.spec import documented
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.log import SiteIn, SiteOut, SiteUpdate
 from confirm_service.schemas.queries import ListQuery
+from confirm_service.services import access
 from confirm_service.services import sites as service
 
 bp = Blueprint("sites", __name__, url_prefix="/api/v1/sites")
@@ -32,7 +33,7 @@ bp = Blueprint("sites", __name__, url_prefix="/api/v1/sites")
     status=201,
     error_statuses=(401, 403, 409, 415, 422),
 )
-@roles("coordinator")
+@roles(*access.REGISTER)
 def create_site() -> Response:
     data = parse_body(SiteIn)
     with database().write() as session:
@@ -63,7 +64,7 @@ def get_site(code: str) -> Response:
 @documented(
     "Update a site", request=SiteUpdate, response=SiteOut, error_statuses=(401, 403, 404, 415, 422)
 )
-@roles("coordinator")
+@roles(*access.REGISTER)
 def update_site(code: str) -> Response:
     data = parse_body(SiteUpdate)
     with database().write() as session:

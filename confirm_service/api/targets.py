@@ -19,6 +19,7 @@ from confirm_service.api.spec import documented
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.log import TargetIn, TargetOut, TargetUpdate
 from confirm_service.schemas.queries import ListQuery
+from confirm_service.services import access
 from confirm_service.services import sites as service
 
 bp = Blueprint("targets", __name__, url_prefix="/api/v1/targets")
@@ -32,7 +33,7 @@ bp = Blueprint("targets", __name__, url_prefix="/api/v1/targets")
     status=201,
     error_statuses=(401, 403, 409, 415, 422),
 )
-@roles("coordinator")
+@roles(*access.REGISTER)
 def create_target() -> Response:
     data = parse_body(TargetIn)
     with database().write() as session:
@@ -65,7 +66,7 @@ def get_target(name: str) -> Response:
     response=TargetOut,
     error_statuses=(401, 403, 404, 415, 422),
 )
-@roles("coordinator")
+@roles(*access.REGISTER)
 def update_target(name: str) -> Response:
     data = parse_body(TargetUpdate)
     with database().write() as session:

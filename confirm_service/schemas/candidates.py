@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import AwareDatetime, BaseModel, Field, StrictBool, model_validator
+from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, StrictBool, model_validator
 from pydantic_core import PydanticCustomError
 
 from confirm_service.schemas.common import StrictModel, UtcIso
@@ -18,6 +18,8 @@ class ProtocolRef(BaseModel):
 
 
 class CheckOut(BaseModel):
+    model_config = ConfigDict(from_attributes=True)
+
     kind: str
     outcome: str
     reason: str
@@ -42,6 +44,8 @@ class LinkedDetection(BaseModel):
 
 
 class TransitionOut(BaseModel):
+    model_config = ConfigDict(from_attributes=True)
+
     from_stage: str | None
     to_stage: str
     from_state: str | None
@@ -53,6 +57,8 @@ class TransitionOut(BaseModel):
 
 
 class CommentOut(BaseModel):
+    model_config = ConfigDict(from_attributes=True)
+
     id: int
     author: str
     role: str
@@ -61,6 +67,8 @@ class CommentOut(BaseModel):
 
 
 class SignOffOut(BaseModel):
+    model_config = ConfigDict(from_attributes=True)
+
     id: int
     stage: str
     role: str

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from datetime import UTC, datetime
+from typing import Any
 
 from sqlalchemy import and_, func, select
 from sqlalchemy.orm import Session
@@ -149,61 +150,41 @@ def get_candidate(session: Session, candidate_id: int) -> Candidate:
     return candidate
 
 
+def _rows_of(session: Session, model: Any, candidate_id: int) -> list[Any]:
+    """Every row of ``model`` about the candidate, oldest first."""
+    return list(
+        session.execute(
+            select(model).where(model.candidate_id == candidate_id).order_by(model.id)
+        ).scalars()
+    )
+
+
+def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
+    return ReportOut(
+        id=report.id,
+        site=site_code,
+        observed_at=report.observed_at,
+        duration_s=report.duration_s,
+        detected=report.detected,
+        frequency_hz=report.frequency_hz,
+        drift_hz_s=report.drift_hz_s,
+        frequency_min_hz=report.frequency_min_hz,
+        frequency_max_hz=report.frequency_max_hz,
+        notes=report.notes,
+        received_at=report.received_at,
+    )
+
+
 def detail(session: Session, candidate_id: int) -> CandidateOut:
     candidate = get_candidate(session, candidate_id)
     base = summary(session, candidate)
-    checks = [
-        CheckOut(
-            kind=c.kind,
-            outcome=c.outcome,
-            reason=c.reason,
-            measured=c.measured,
-            expected=c.expected,
-            tolerance=c.tolerance,
-            unit=c.unit,
-            details=c.details or {},
-            evaluated_at=c.evaluated_at,
-        )
-        for c in latest_checks(session, candidate_id)
-    ]
-    history = [
-        TransitionOut(
-            from_stage=t.from_stage,
-            to_stage=t.to_stage,
-            from_state=t.from_state,
-            to_state=t.to_state,
-            reason=t.reason,
-            reason_class=t.reason_class,
-            actor=t.actor,
-            at=t.at,
-        )
-        for t in session.execute(
-            select(StageTransition)
-            .where(StageTransition.candidate_id == candidate_id)
-            .order_by(StageTransition.id)
-        ).scalars()
-    ]
-    comments = [
-        CommentOut(id=c.id, author=c.author, role=c.role, text=c.text, at=c.at)
-        for c in session.execute(
-            select(Comment).where(Comment.candidate_id == candidate_id).order_by(Comment.id)
-        ).scalars()
-    ]
     site_codes = dict(session.execute(select(Site.id, Site.code)).all())
-    signoffs = [
-        SignOffOut(
-            id=s.id,
-            stage=s.stage,
-            role=s.role,
-            person=s.person,
-            approve=s.approve,
-            rationale=s.rationale,
-            at=s.at,
-        )
-        for s in session.execute(
-            select(SignOff).where(SignOff.candidate_id == candidate_id).order_by(SignOff.id)
-        ).scalars()
+    checks = [CheckOut.model_validate(c) for c in latest_checks(session, candidate_id)]
+    history = [
+        TransitionOut.model_validate(t) for t in _rows_of(session, StageTransition, candidate_id)
     ]
+    comments = [CommentOut.model_validate(c) for c in _rows_of(session, Comment, candidate_id)]
+    signoffs = [SignOffOut.model_validate(s) for s in _rows_of(session, SignOff, candidate_id)]
     followups = [
         FollowUpOut(
             id=f.id,
@@ -214,31 +195,11 @@ def detail(session: Session, candidate_id: int) -> CandidateOut:
             payload=f.payload,
             created_at=f.created_at,
         )
-        for f in session.execute(
-            select(FollowUpRequest)
-            .where(FollowUpRequest.candidate_id == candidate_id)
-            .order_by(FollowUpRequest.id)
-        ).scalars()
+        for f in _rows_of(session, FollowUpRequest, candidate_id)
     ]
     reports = [
-        ReportOut(
-            id=r.id,
-            site=site_codes.get(r.site_id, "?"),
-            observed_at=r.observed_at,
-            duration_s=r.duration_s,
-            detected=r.detected,
-            frequency_hz=r.frequency_hz,
-            drift_hz_s=r.drift_hz_s,
-            frequency_min_hz=r.frequency_min_hz,
-            frequency_max_hz=r.frequency_max_hz,
-            notes=r.notes,
-            received_at=r.received_at,
-        )
-        for r in session.execute(
-            select(FollowUpReport)
-            .where(FollowUpReport.candidate_id == candidate_id)
-            .order_by(FollowUpReport.id)
-        ).scalars()
+        report_out(r, site_codes.get(r.site_id, "?"))
+        for r in _rows_of(session, FollowUpReport, candidate_id)
     ]
     return CandidateOut(
         **base.model_dump(),

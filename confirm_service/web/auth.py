@@ -21,7 +21,7 @@ from flask import Flask, abort, current_app, g, request, session
 from confirm_service.config import ConfigError, Settings
 from confirm_service.db import Database
 from confirm_service.models import ApiToken
-from confirm_service.services import tokens
+from confirm_service.services import access, tokens
 from confirm_service.services.actor import Actor
 
 F = TypeVar("F", bound=Callable[..., Any])
@@ -36,11 +36,11 @@ SIGNED_IN_AT_KEY = "signed_in_unix_s"
 CSRF_KEY = "csrf"
 CSRF_FIELD = "csrf_token"
 
-READ_ROLES = ("viewer", "pipeline", "site", "coordinator", "admin")
-SIGNOFF_ROLES = ("coordinator", "site")
-COMMENT_ROLES = ("coordinator", "site")
-DECISION_ROLES = ("coordinator",)
-HOLD_ROLES = ("coordinator",)
+READ_ROLES = access.READ
+SIGNOFF_ROLES = access.SIGNOFF
+COMMENT_ROLES = access.COMMENT
+DECISION_ROLES = access.DECIDE
+HOLD_ROLES = access.RELEASE_HOLD
 
 
 # --- the key that signs session cookies ------------------------------------------------------
