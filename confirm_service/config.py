@@ -46,12 +46,7 @@ class Settings:
     max_batch_detections: Annotated[int, Field(gt=0)] = 50_000
     max_body_bytes: Annotated[int, Field(gt=0)] = 64 * 1024 * 1024
     clock_skew_allowance_s: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 300.0
-    page_limit_default: Annotated[int, Field(gt=0)] = 100
-    page_limit_max: Annotated[int, Field(gt=0)] = 1_000
     service_origin: str = "confirm-service"
-    smtp_host: str = "127.0.0.1"
-    smtp_port: Annotated[int, Field(gt=0, lt=65536)] = 25
-    mail_from: str = "confirm-service@localhost"
     checkpoint_interval_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 3600.0
     secret_key: str = field(default="", repr=False)
 

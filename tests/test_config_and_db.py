@@ -29,7 +29,7 @@ def test_file_then_environment_then_overrides(tmp_path):
     [
         ({"CONFIRM_DATABASE_URL": "mysql://x@y/z"}, "not supported"),
         ({"CONFIRM_DATABASE_URL": "::"}, "malformed"),
-        ({"CONFIRM_PAGE_LIMIT_MAX": "-3"}, "CONFIRM_PAGE_LIMIT_MAX"),
+        ({"CONFIRM_CLOCK_SKEW_ALLOWANCE_S": "-3"}, "CONFIRM_CLOCK_SKEW_ALLOWANCE_S"),
     ],
 )
 def test_bad_values_are_one_line(environ, words):
@@ -58,3 +58,21 @@ def test_sqlite_runs_in_wal_mode_with_foreign_keys(tmp_path):
 def test_postgres_url_gets_the_psycopg_driver():
     settings = load_settings(environ={"CONFIRM_DATABASE_URL": "postgresql://u@h/db"})
     assert settings.database_url.startswith("postgresql+psycopg://")
+
+
+def test_ephemeris_file_setting_switches_the_ephemeris(tmp_path):
+    # skyfield-data ships JPL DE421 (the same file the physics tests compare against)
+    from skyfield_data import get_skyfield_data_path
+
+    from confirm_service import physics
+    from confirm_service.services import runtime
+
+    de421 = f"{get_skyfield_data_path()}/de421.bsp"
+    runtime.configure(load_settings({"ephemeris_file": de421}, {}))
+    try:
+        assert physics.current_ephemeris() == de421
+        with pytest.raises(ConfigError, match="CONFIRM_EPHEMERIS_FILE"):
+            runtime.configure(load_settings({"ephemeris_file": str(tmp_path / "none.bsp")}, {}))
+    finally:
+        runtime.configure(load_settings({}, {}))
+    assert physics.current_ephemeris() == "builtin"

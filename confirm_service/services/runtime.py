@@ -2,13 +2,25 @@
 
 from __future__ import annotations
 
-from confirm_service.config import Settings, load_settings
+from confirm_service.config import ConfigError, Settings, load_settings
 
 _settings: Settings | None = None
 
 
 def configure(settings: Settings) -> None:
+    """Use ``settings`` for this process; switches the solar-system ephemeris if one is named.
+
+    A named ephemeris file that cannot be used stops start-up with a one-line ConfigError.
+    """
     global _settings
+    from confirm_service import physics
+
+    wanted = str(settings.ephemeris_file) if settings.ephemeris_file else "builtin"
+    if physics.current_ephemeris() != wanted:
+        try:
+            physics.set_ephemeris(settings.ephemeris_file)
+        except (physics.PhysicsInputError, RuntimeError) as exc:
+            raise ConfigError(f"CONFIRM_EPHEMERIS_FILE: {exc}") from None
     _settings = settings
 
 
