@@ -5,10 +5,10 @@ from __future__ import annotations
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.models import Candidate
 from confirm_service.protocol import LoadedProtocol
-from confirm_service.services.actor import Actor
 from confirm_service.services.evaluation import reevaluate
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import ensure_recorded, mark_active

@@ -8,10 +8,10 @@ from __future__ import annotations
 from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, Forbidden, Invalid, NotFound
 from confirm_service.models import Candidate, Comment, SignOff
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Conflict, Forbidden, Invalid, NotFound
 from confirm_service.services.evaluation import (
     locked_candidate,
     reevaluate,

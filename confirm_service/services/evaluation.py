@@ -14,7 +14,9 @@ from typing import Any
 from sqlalchemy import and_, event, func, or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import NotFound
 from confirm_service.models import (
     Candidate,
     CandidateDetection,
@@ -27,8 +29,6 @@ from confirm_service.models import (
 from confirm_service.protocol import Evaluation, default_physics_context, evaluate
 from confirm_service.services import facts as factbook
 from confirm_service.services import runtime
-from confirm_service.services.actor import SYSTEM, Actor
-from confirm_service.services.errors import NotFound
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import protocol_of
 from confirm_service.timeutil import utc_now

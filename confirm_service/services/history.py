@@ -6,8 +6,8 @@ from datetime import datetime
 
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.models import StageTransition
-from confirm_service.services.actor import Actor
 from confirm_service.timeutil import utc_now
 
 

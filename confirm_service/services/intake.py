@@ -9,7 +9,9 @@ from collections.abc import Sequence
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, Invalid, NotFound
 from confirm_service.models import Candidate, CandidateDetection, Detection, Observation
 from confirm_service.protocol import (
     LoadedProtocol,
@@ -23,8 +25,6 @@ from confirm_service.protocol import (
 from confirm_service.schemas.log import DetectionIn
 from confirm_service.services import facts as factbook
 from confirm_service.services import protocols
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Conflict, Invalid, NotFound
 from confirm_service.services.evaluation import candidates_bearing_on, record_actions, reevaluate
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import configured_protocol, protocol_of

@@ -6,10 +6,10 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Forbidden
 from confirm_service.models import FollowUpReport
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Forbidden
 from confirm_service.services.evaluation import locked_candidate, reevaluate
 from confirm_service.services.sites import site_by_code
 
