@@ -13,7 +13,7 @@ from confirm_service.models.candidates import (
     StageTransition,
 )
 from confirm_service.models.followups import FollowUpReport, FollowUpRequest
-from confirm_service.models.log import Detection, Observation, Site, Target
+from confirm_service.models.log import Detection, Observation, ScreeningRun, Site, Target
 
 __all__ = [
     "ROLES",
@@ -32,6 +32,7 @@ __all__ = [
     "IdempotencyRecord",
     "Observation",
     "ProtocolRecord",
+    "ScreeningRun",
     "SignOff",
     "Site",
     "StageTransition",

@@ -1,0 +1,451 @@
+"""Screening a cadence when its scans are complete: arrays out of the database, reasons back.
+
+The rules themselves are pure (``protocol.screening``); this module loads the cadence's hits as
+numpy arrays (one query), asks the physics engine for each scan's Doppler factor and Earth-drift
+rate toward the target, writes one reason per judged hit in bulk (one UPDATE per reason), records
+the run (``screening_runs``) with one audit entry, and turns the surviving signals into
+candidates. No ORM object is made per hit.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
+from datetime import timedelta
+from typing import Any
+
+import numpy as np
+from sqlalchemy import func, or_, select
+from sqlalchemy.orm import Session
+
+from confirm_service.actor import Actor
+from confirm_service.audit.log import record
+from confirm_service.models import Detection, Observation, ScreeningRun
+from confirm_service.protocol import LoadedProtocol, default_physics_context
+from confirm_service.protocol.screening import (
+    BandEdges,
+    OccupancyHits,
+    Reason,
+    ScanHits,
+    ScreeningRules,
+    decided_digest,
+    screen_cadence,
+)
+from confirm_service.services import facts as factbook
+from confirm_service.services.protocols import configured_protocol, ensure_recorded
+
+SPEED_OF_LIGHT_M_S = 299_792_458.0
+"""Exact, by the SI definition of the metre."""
+
+
+@dataclass(frozen=True)
+class ScanRow:
+    """The columns of a scan that screening reads."""
+
+    id: int
+    target_id: int | None
+    start_unix_s: float
+    duration_s: float
+    channel_width_hz: float
+    frequency_min_hz: float
+    frequency_max_hz: float
+    on_source: bool
+    complete: bool
+
+
+def cadence_scans(session: Session, observation: Observation) -> list[Observation]:
+    """The scans screened together with ``observation``: its cadence at its site, or itself."""
+    if observation.cadence is None:
+        return [observation]
+    query = (
+        select(Observation)
+        .where(
+            Observation.site_id == observation.site_id, Observation.cadence == observation.cadence
+        )
+        .order_by(Observation.start, Observation.id)
+    )
+    return list(session.execute(query).scalars())
+
+
+def _scan_row(observation: Observation) -> ScanRow:
+    return ScanRow(
+        observation.id,
+        observation.target_id,
+        observation.start.timestamp(),
+        observation.duration_s,
+        observation.channel_width_hz,
+        observation.frequency_min_hz,
+        observation.frequency_max_hz,
+        observation.on_source,
+        observation.completed_at is not None,
+    )
+
+
+def _hit_columns(session: Session, observation_ids: Sequence[int], max_id: int | None = None):  # type: ignore[no-untyped-def]
+    """(observation id, id, frequency, drift, snr, offset, pending) arrays of the scans' hits."""
+    connection = session.connection()
+    marker = "%s" if connection.dialect.paramstyle in ("format", "pyformat") else "?"
+    places = ", ".join([marker] * len(observation_ids))
+    statement = (
+        "SELECT observation_id, id, frequency_hz, drift_hz_s, snr, time_offset_s, "
+        f"screen_reason IS NULL FROM detections WHERE observation_id IN ({places})"
+    )
+    parameters: list[Any] = list(observation_ids)
+    if max_id is not None:
+        statement += f" AND id <= {marker}"
+        parameters.append(max_id)
+    rows = connection.exec_driver_sql(statement, tuple(parameters)).fetchall()
+    if not rows:
+        empty = np.empty(0)
+        return (empty.astype(np.int64),) * 2 + (empty,) * 4 + (empty.astype(bool),)
+    columns = list(zip(*rows, strict=True))
+    return (
+        np.fromiter(columns[0], dtype=np.int64, count=len(rows)),
+        np.fromiter(columns[1], dtype=np.int64, count=len(rows)),
+        np.fromiter(columns[2], dtype=np.float64, count=len(rows)),
+        np.fromiter(columns[3], dtype=np.float64, count=len(rows)),
+        np.fromiter(columns[4], dtype=np.float64, count=len(rows)),
+        np.fromiter(columns[5], dtype=np.float64, count=len(rows)),
+        np.fromiter(columns[6], dtype=bool, count=len(rows)),
+    )
+
+
+def _doppler(
+    observation: Observation, scans: Sequence[ScanRow], target: Any
+) -> tuple[np.ndarray, np.ndarray]:
+    """Per scan: Doppler factor 1 + v/c and (dv/dt)/(c + v) (1/s) toward ``target``."""
+    if target is None:
+        return np.ones(len(scans)), np.zeros(len(scans))
+    context = default_physics_context()
+    request = context.track_request(
+        factbook.site_fact(observation.site), factbook.target_fact(target)
+    )
+    times = np.array([s.start_unix_s for s in scans], dtype=np.float64)
+    velocity, acceleration = context.cache.kinematics(
+        [request], np.zeros(len(scans), dtype=np.int64), times
+    )
+    return 1.0 + velocity / SPEED_OF_LIGHT_M_S, acceleration / (SPEED_OF_LIGHT_M_S + velocity)
+
+
+def scan_hits(
+    session: Session,
+    observation: Observation,
+    scans: Sequence[ScanRow],
+    target: Any,
+    on_source_target_id: int | None,
+) -> list[ScanHits]:
+    """The scans' hits as frequency-sorted arrays (frequency referred to each scan's start)."""
+    owner, ids, frequency, drift, snr, offset, pending = _hit_columns(
+        session, [s.id for s in scans]
+    )
+    start_frequency = frequency - drift * offset
+    doppler, earth_per_hz = _doppler(observation, scans, target)
+    result = []
+    for k, scan in enumerate(scans):
+        mine = np.nonzero(owner == scan.id)[0]
+        mine = mine[np.argsort(start_frequency[mine], kind="stable")]
+        result.append(
+            ScanHits(
+                observation_id=scan.id,
+                start_unix_s=scan.start_unix_s,
+                duration_s=scan.duration_s,
+                channel_width_hz=scan.channel_width_hz,
+                frequency_min_hz=scan.frequency_min_hz,
+                frequency_max_hz=scan.frequency_max_hz,
+                on_source=scan.on_source and scan.target_id == on_source_target_id,
+                complete=scan.complete,
+                doppler_factor=float(doppler[k]),
+                earth_drift_per_hz=float(earth_per_hz[k]),
+                hit_id=ids[mine],
+                frequency_hz=start_frequency[mine],
+                drift_hz_s=drift[mine],
+                snr=snr[mine],
+                pending=pending[mine],
+            )
+        )
+    return result
+
+
+def _scan_attributes(
+    session: Session, observation_ids: Sequence[int]
+) -> dict[int, tuple[float, float]]:
+    """observation id -> (channel width Hz, duration s)."""
+    rows = session.execute(
+        select(Observation.id, Observation.channel_width_hz, Observation.duration_s).where(
+            Observation.id.in_(observation_ids)
+        )
+    ).all()
+    return {row[0]: (row[1], row[2]) for row in rows}
+
+
+def occupancy_scan_ids(
+    session: Session,
+    observation: Observation,
+    scans: Sequence[ScanRow],
+    target_id: int | None,
+    span_s: float,
+) -> list[int]:
+    """Scans of other targets (or none) at the same site within ``span_s`` of the cadence."""
+    if span_s <= 0 or not scans:
+        return []
+    first = min(s.start_unix_s for s in scans) - span_s
+    last = max(s.start_unix_s + s.duration_s for s in scans) + span_s
+    origin = observation.start.timestamp()
+    query = select(Observation.id).where(
+        Observation.site_id == observation.site_id,
+        Observation.start >= observation.start + timedelta(seconds=first - origin),
+        Observation.start <= observation.start + timedelta(seconds=last - origin),
+        Observation.id.not_in([s.id for s in scans]),
+    )
+    if target_id is not None:
+        query = query.where(
+            or_(Observation.target_id.is_(None), Observation.target_id != target_id)
+        )
+    return list(session.execute(query.order_by(Observation.id)).scalars())
+
+
+def occupancy_hits(
+    session: Session, observation_ids: Sequence[int], max_detection_id: int | None
+) -> OccupancyHits:
+    """The hits of ``observation_ids`` (up to ``max_detection_id``), sorted by start frequency."""
+    if not observation_ids:
+        return OccupancyHits.empty()
+    owner, _, frequency, drift, _, offset, _ = _hit_columns(
+        session, observation_ids, max_detection_id
+    )
+    if owner.size == 0:
+        return OccupancyHits.empty()
+    attributes = _scan_attributes(session, observation_ids)
+    width = np.array([attributes[int(o)][0] for o in owner.tolist()])
+    duration = np.array([attributes[int(o)][1] for o in owner.tolist()])
+    start_frequency = frequency - drift * offset
+    order = np.argsort(start_frequency, kind="stable")
+    return OccupancyHits(
+        start_frequency[order], drift[order], (width / duration)[order], width[order]
+    )
+
+
+@dataclass
+class RunSummary:
+    """What one screening run decided: counts per reason, the digest, candidates made."""
+
+    run_id: int
+    counts: dict[str, int]
+    decided_sha256: str
+    candidate_ids: list[int]
+
+
+def _linked_pending(session: Session, scans: Sequence[ScanHits]) -> dict[int, int]:
+    """Pending hits of the scans that an existing candidate's evaluation already linked."""
+    from confirm_service.models import CandidateDetection
+
+    pending = {int(i) for scan in scans for i in scan.hit_id[scan.pending].tolist()}
+    if not pending:
+        return {}
+    rows = session.execute(
+        select(CandidateDetection.detection_id, CandidateDetection.candidate_id).where(
+            CandidateDetection.observation_id.in_([scan.observation_id for scan in scans])
+        )
+    ).all()
+    return {row[0]: row[1] for row in rows if row[0] in pending}
+
+
+def _without(scans: Sequence[ScanHits], hit_ids: set[int]) -> list[ScanHits]:
+    """The scans with ``hit_ids`` no longer pending."""
+    if not hit_ids:
+        return list(scans)
+    wanted = np.fromiter(hit_ids, dtype=np.int64, count=len(hit_ids))
+    return [replace(scan, pending=scan.pending & ~np.isin(scan.hit_id, wanted)) for scan in scans]
+
+
+@dataclass
+class Judgement:
+    """Reasons decided for pending hits of a cadence and the surviving signals."""
+
+    decided: dict[int, Reason]
+    signals: list[list[tuple[int, int, float]]]
+    occupancy_ids: list[int]
+
+
+def judge_cadence(
+    session: Session,
+    observation: Observation,
+    rows: Sequence[ScanRow],
+    protocol: LoadedProtocol,
+    max_detection_id: int | None,
+    not_pending: set[int] | None = None,
+    occupancy_ids: Sequence[int] | None = None,
+) -> Judgement:
+    """Judge every pending hit of the complete scans in ``rows`` (one cadence at one site).
+
+    Each target of the cadence is screened with its own on-source scans as "on" and every scan
+    that is not on-source as "off"; hits of on-source scans without a target cannot be followed.
+    ``not_pending`` and ``occupancy_ids`` let a replay see exactly what the run saw.
+    """
+    from confirm_service.models import Target
+
+    rules = ScreeningRules.from_protocol(protocol.model)
+    bands = BandEdges.of(protocol.bands)
+    decided: dict[int, Reason] = {}
+    signals: list[list[tuple[int, int, float]]] = []
+    used_occupancy: list[int] = []
+    targets = sorted({r.target_id for r in rows if r.on_source and r.target_id is not None})
+    for target_id in targets or [None]:
+        target = session.get(Target, target_id) if target_id is not None else None
+        scans = scan_hits(session, observation, rows, target, target_id)
+        scans = [
+            _judged_in_pass(scan, row, target_id) for scan, row in zip(scans, rows, strict=True)
+        ]
+        scans = _without(scans, set(decided) | (not_pending or set()))
+        if not_pending is None:
+            linked = _linked_pending(session, scans)
+            decided.update({hit: Reason.LINKED for hit in linked})
+            scans = _without(scans, set(linked))
+        if occupancy_ids is None:
+            ids = occupancy_scan_ids(session, observation, rows, target_id, rules.occupancy_span_s)
+        else:
+            ids = list(occupancy_ids)
+        used_occupancy += [i for i in ids if i not in used_occupancy]
+        occupancy = occupancy_hits(session, ids, max_detection_id)
+        outcome = screen_cadence(scans, rules, bands, occupancy, observation.cadence is not None)
+        decided.update(dict(outcome.decided(scans)))
+        signals += [
+            [
+                (int(scans[k].hit_id[p]), scans[k].observation_id, float(scans[k].snr[p]))
+                for k, p in group
+            ]
+            for group in outcome.signals
+        ]
+    return Judgement(decided, signals, used_occupancy)
+
+
+def _judged_in_pass(scan: ScanHits, row: ScanRow, target_id: int | None) -> ScanHits:
+    """Another target's on-source scan is evidence in this pass, not judged in it."""
+    if row.on_source and row.target_id != target_id:
+        return replace(scan, pending=np.zeros(scan.size, dtype=bool))
+    return scan
+
+
+def write_reasons(session: Session, run_id: int, decided: dict[int, Reason]) -> None:
+    """One UPDATE per reason (ids in chunks): reasons and the run id, no ORM object per hit."""
+    by_reason: dict[Reason, list[int]] = {}
+    for hit_id, reason in decided.items():
+        by_reason.setdefault(reason, []).append(hit_id)
+    connection = session.connection()
+    postgres = connection.dialect.name == "postgresql"
+    for reason, ids in sorted(by_reason.items()):
+        ids.sort()
+        if postgres:
+            connection.exec_driver_sql(
+                "UPDATE detections SET screen_reason = %s, screening_run_id = %s "
+                "WHERE id = ANY(%s)",
+                (reason.value, run_id, ids),
+            )
+            continue
+        for first in range(0, len(ids), UPDATE_CHUNK):
+            chunk = ids[first : first + UPDATE_CHUNK]
+            places = ", ".join("?" * len(chunk))
+            connection.exec_driver_sql(
+                "UPDATE detections SET screen_reason = ?, screening_run_id = ? "
+                f"WHERE id IN ({places})",
+                (reason.value, run_id, *chunk),
+            )
+
+
+UPDATE_CHUNK = 10_000
+"""Ids per SQLite UPDATE (its default limit is 32,766 bound parameters)."""
+
+
+def counts_of(decided: dict[int, Reason]) -> dict[str, int]:
+    """Hits per reason, sorted by reason name."""
+    counts: dict[str, int] = {}
+    for reason in decided.values():
+        counts[reason.value] = counts.get(reason.value, 0) + 1
+    return dict(sorted(counts.items()))
+
+
+def _pending_count(session: Session, observation_ids: Sequence[int]) -> int:
+    if not observation_ids:
+        return 0
+    return int(
+        session.execute(
+            select(func.count())
+            .select_from(Detection)
+            .where(Detection.observation_id.in_(observation_ids), Detection.screen_reason.is_(None))
+        ).scalar_one()
+    )
+
+
+def screen_after_completion(session: Session, actor: Actor, observation: Observation) -> RunSummary:
+    """Screen the cadence of a scan that just became complete; candidates from survivors.
+
+    One run: every pending hit of the cadence's complete scans is judged, the reasons written in
+    bulk, the run recorded and audited; surviving signals become candidates (or join the
+    candidate already on their track).
+    """
+    from confirm_service.services import intake
+
+    protocol = configured_protocol(session)
+    ensure_recorded(session, actor, protocol)
+    members = cadence_scans(session, observation)
+    rows = [_scan_row(o) for o in members]
+    complete = [r for r in rows if r.complete]
+    max_detection_id = session.execute(select(func.max(Detection.id))).scalar_one()
+    judgement = judge_cadence(session, observation, complete, protocol, max_detection_id)
+    decided = dict(judgement.decided)
+    decided.update(_untargeted(session, complete, decided))
+    digest = decided_digest([(h, r.value) for h, r in decided.items()])
+    run = ScreeningRun(
+        site_id=observation.site_id,
+        cadence=observation.cadence,
+        trigger_observation_id=observation.id,
+        observation_ids=[r.id for r in complete],
+        occupancy_observation_ids=judgement.occupancy_ids,
+        occupancy_max_detection_id=max_detection_id,
+        protocol_sha256=protocol.content_sha256,
+        bands_sha256=protocol.bands_sha256,
+        counts=counts_of(decided),
+        decided_sha256=digest,
+        candidate_ids=[],
+    )
+    session.add(run)
+    session.flush()
+    write_reasons(session, run.id, decided)
+    candidate_ids = intake.candidates_from_signals(session, actor, judgement.signals)
+    run.candidate_ids = candidate_ids
+    run.pending = _pending_count(session, [r.id for r in complete])
+    record(
+        session,
+        actor,
+        "screening.run",
+        f"observation:{observation.id}",
+        {
+            "run_id": run.id,
+            "cadence": observation.cadence,
+            "observation_ids": run.observation_ids,
+            "occupancy_observation_ids": run.occupancy_observation_ids,
+            "occupancy_max_detection_id": max_detection_id,
+            "protocol_sha256": protocol.content_sha256,
+            "bands_sha256": protocol.bands_sha256,
+            "counts": run.counts,
+            "pending": run.pending,
+            "decided_sha256": digest,
+            "candidate_ids": candidate_ids,
+        },
+    )
+    return RunSummary(run.id, run.counts, digest, candidate_ids)
+
+
+def _untargeted(
+    session: Session, rows: Sequence[ScanRow], decided: dict[int, Reason]
+) -> dict[int, Reason]:
+    """Pending hits of on-source scans without a target: nothing to follow them up on."""
+    ids = [r.id for r in rows if r.on_source and r.target_id is None]
+    if not ids:
+        return {}
+    found = session.execute(
+        select(Detection.id).where(
+            Detection.observation_id.in_(ids), Detection.screen_reason.is_(None)
+        )
+    ).scalars()
+    return {hit: Reason.NO_TARGET for hit in found if hit not in decided}
