@@ -20,6 +20,7 @@ from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import NotFound
 from confirm_service.models import Detection, Observation, ScreeningRun
 from confirm_service.protocol import LoadedProtocol, default_physics_context
 from confirm_service.protocol.screening import (
@@ -133,11 +134,18 @@ def scan_hits(
     scans: Sequence[ScanRow],
     target: Any,
     on_source_target_id: int | None,
+    all_pending: bool = False,
 ) -> list[ScanHits]:
-    """The scans' hits as frequency-sorted arrays (frequency referred to each scan's start)."""
+    """The scans' hits as frequency-sorted arrays (frequency referred to each scan's start).
+
+    A hit is pending when it has no screening reason yet (``all_pending``: every hit, for a
+    replay that then removes what was decided before the run it replays).
+    """
     owner, ids, frequency, drift, snr, offset, pending = _hit_columns(
         session, [s.id for s in scans]
     )
+    if all_pending:
+        pending = np.ones(ids.size, dtype=bool)
     start_frequency = frequency - drift * offset
     doppler, earth_per_hz = _doppler(observation, scans, target)
     result = []
@@ -292,7 +300,7 @@ def judge_cadence(
     targets = sorted({r.target_id for r in rows if r.on_source and r.target_id is not None})
     for target_id in targets or [None]:
         target = session.get(Target, target_id) if target_id is not None else None
-        scans = scan_hits(session, observation, rows, target, target_id)
+        scans = scan_hits(session, observation, rows, target, target_id, not_pending is not None)
         scans = [
             _judged_in_pass(scan, row, target_id) for scan, row in zip(scans, rows, strict=True)
         ]
@@ -393,7 +401,7 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
     max_detection_id = session.execute(select(func.max(Detection.id))).scalar_one()
     judgement = judge_cadence(session, observation, complete, protocol, max_detection_id)
     decided = dict(judgement.decided)
-    decided.update(_untargeted(session, complete, decided))
+    decided.update(_untargeted(session, complete, set(decided)))
     digest = decided_digest([(h, r.value) for h, r in decided.items()])
     run = ScreeningRun(
         site_id=observation.site_id,
@@ -437,15 +445,100 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
 
 
 def _untargeted(
-    session: Session, rows: Sequence[ScanRow], decided: dict[int, Reason]
+    session: Session,
+    rows: Sequence[ScanRow],
+    decided: set[int],
+    not_pending: set[int] | None = None,
 ) -> dict[int, Reason]:
-    """Pending hits of on-source scans without a target: nothing to follow them up on."""
+    """Pending hits of on-source scans without a target: nothing to follow them up on.
+
+    Pending means no reason yet, or (for a replay) not in ``not_pending``.
+    """
     ids = [r.id for r in rows if r.on_source and r.target_id is None]
     if not ids:
         return {}
-    found = session.execute(
-        select(Detection.id).where(
-            Detection.observation_id.in_(ids), Detection.screen_reason.is_(None)
+    query = select(Detection.id).where(Detection.observation_id.in_(ids))
+    if not_pending is None:
+        query = query.where(Detection.screen_reason.is_(None))
+    skip = decided | (not_pending or set())
+    return {hit: Reason.NO_TARGET for hit in session.execute(query).scalars() if hit not in skip}
+
+
+@dataclass
+class RunReplay:
+    """A screening run recomputed from what it saw: same digest and counts, or not."""
+
+    run_id: int
+    recorded_sha256: str
+    replayed_sha256: str
+    recorded_counts: dict[str, int]
+    replayed_counts: dict[str, int]
+
+    @property
+    def reproduced(self) -> bool:
+        return (
+            self.recorded_sha256 == self.replayed_sha256
+            and self.recorded_counts == self.replayed_counts
         )
+
+
+def replay_run(session: Session, run_id: int) -> RunReplay:
+    """Recompute run ``run_id`` from its scans, occupancy snapshot and protocol (read only).
+
+    Hits decided before the run, flagged by the pipeline, or linked to a candidate by its
+    evaluation in the run are taken as they were; every other reason is recomputed by the rules.
+    """
+    from confirm_service.services.protocols import protocol_for
+
+    run = session.get(ScreeningRun, run_id)
+    if run is None:
+        raise NotFound(f"no screening run {run_id}", [("run_id", "no such screening run")])
+    observation = session.get(Observation, run.trigger_observation_id)
+    assert observation is not None
+    protocol = protocol_for(session, run.protocol_sha256, run.bands_sha256)
+    scans = session.execute(
+        select(Observation)
+        .where(Observation.id.in_(run.observation_ids))
+        .order_by(Observation.start, Observation.id)
     ).scalars()
-    return {hit: Reason.NO_TARGET for hit in found if hit not in decided}
+    rows = [replace(_scan_row(o), complete=True) for o in scans]
+    given = session.execute(
+        select(Detection.id, Detection.screen_reason, Detection.screening_run_id).where(
+            Detection.observation_id.in_(run.observation_ids),
+            or_(
+                Detection.screening_run_id < run.id,
+                Detection.screen_reason.in_(
+                    [Reason.FLAGGED.value, Reason.BEFORE_SCREENING.value, Reason.LINKED.value]
+                ),
+            ),
+        )
+    ).all()
+    not_pending = {hit for hit, reason, by in given if by != run.id or reason != Reason.LINKED}
+    linked = {
+        hit: Reason.LINKED for hit, reason, by in given if by == run.id and reason == "linked"
+    }
+    judgement = judge_cadence(
+        session,
+        observation,
+        rows,
+        protocol,
+        run.occupancy_max_detection_id,
+        not_pending | set(linked),
+        run.occupancy_observation_ids,
+    )
+    decided = {**judgement.decided, **linked}
+    decided.update(_untargeted(session, rows, set(decided), not_pending | set(linked)))
+    return RunReplay(
+        run.id,
+        run.decided_sha256,
+        decided_digest([(h, r.value) for h, r in decided.items()]),
+        dict(run.counts),
+        counts_of(decided),
+    )
+
+
+def replay_runs(session: Session, run_ids: Sequence[int] | None = None) -> list[RunReplay]:
+    """Replay the given runs (default: every run), oldest first."""
+    if run_ids is None:
+        run_ids = list(session.execute(select(ScreeningRun.id).order_by(ScreeningRun.id)).scalars())
+    return [replay_run(session, run_id) for run_id in run_ids]
