@@ -23,6 +23,7 @@ TIME_RESOLUTION_S = 12.5
 BAND_HZ = (1.30e9, 1.80e9)
 CLEAR_SPAN_HZ = (1.6300e9, 1.6400e9)
 """A stretch of the band kept free of interference, where the sky-fixed signals are placed."""
+SKY_RESIDUAL_DRIFTS_HZ_S = (0.12, -0.09, 0.21, -0.17)
 GUARD_HZ = 40_000.0
 """No other hit lies within this of a sky-fixed signal's frequency (wider than the off-source
 search window of the shipped protocols: 10 Hz/s over a 26-minute cadence plus margins)."""
@@ -109,12 +110,15 @@ def make_cadence(
     label = label or f"{site['code']}-{start:%Y%m%dT%H%M}-{target['name']}"
     starts = [start + timedelta(seconds=k * (SCAN_S + GAP_S)) for k in range(scans)]
     sky = [
-        float(CLEAR_SPAN_HZ[0] + (n + 1) * (CLEAR_SPAN_HZ[1] - CLEAR_SPAN_HZ[0]) / (sky_signals + 1))
+        float(
+            CLEAR_SPAN_HZ[0] + (n + 1) * (CLEAR_SPAN_HZ[1] - CLEAR_SPAN_HZ[0]) / (sky_signals + 1)
+        )
         for n in range(sky_signals)
     ]
+    # own drifts of a few tenths of Hz/s, clearly apart from zero at this drift resolution
     signals = [
-        SkyFixedSignal(site, target, starts[0], frequency_hz=f, residual_drift_hz_s=0.011 * (n + 1))
-        for n, f in enumerate(sky)
+        SkyFixedSignal(site, target, starts[0], frequency_hz=f, residual_drift_hz_s=drift)
+        for f, drift in zip(sky, SKY_RESIDUAL_DRIFTS_HZ_S, strict=False)
     ]
     n_persistent = int(round(persistent_fraction * hits_per_scan))
     persistent_f = _random_frequencies(rng, n_persistent, sky)

@@ -466,18 +466,23 @@ def _untargeted(
 
 @dataclass
 class RunReplay:
-    """A screening run recomputed from what it saw: same digest and counts, or not."""
+    """A screening run recomputed from what it saw, beside what it recorded and what is stored.
+
+    ``recorded``: the run's digest as audited; ``replayed``: the rules applied again;
+    ``stored``: the reasons the hits carry today. All three agree when nothing changed.
+    """
 
     run_id: int
     recorded_sha256: str
     replayed_sha256: str
+    stored_sha256: str
     recorded_counts: dict[str, int]
     replayed_counts: dict[str, int]
 
     @property
     def reproduced(self) -> bool:
         return (
-            self.recorded_sha256 == self.replayed_sha256
+            self.recorded_sha256 == self.replayed_sha256 == self.stored_sha256
             and self.recorded_counts == self.replayed_counts
         )
 
@@ -528,10 +533,14 @@ def replay_run(session: Session, run_id: int) -> RunReplay:
     )
     decided = {**judgement.decided, **linked}
     decided.update(_untargeted(session, rows, set(decided), not_pending | set(linked)))
+    stored = session.execute(
+        select(Detection.id, Detection.screen_reason).where(Detection.screening_run_id == run.id)
+    ).all()
     return RunReplay(
         run.id,
         run.decided_sha256,
         decided_digest([(h, r.value) for h, r in decided.items()]),
+        decided_digest([(h, str(r)) for h, r in stored]),
         dict(run.counts),
         counts_of(decided),
     )

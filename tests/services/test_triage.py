@@ -71,7 +71,9 @@ def assert_only_the_sky_signals(client, auth, cadence, scan_ids):
         cadence.sky_frequencies_hz,
         strict=True,
     ):
-        assert abs(candidate["barycentric_frequency_hz"] - frequency) < 50_000.0
+        # barycentric vs the topocentric injection: |v/c| <= 1.1e-4 (Earth's orbital speed
+        # 29.8 km/s plus rotation, published constants) gives at most ~180 kHz at 1.64 GHz
+        assert abs(candidate["barycentric_frequency_hz"] - frequency) < 200_000.0
         assert candidate["state"] == "open", candidate["reason"]
         outcomes = {c["kind"]: c["outcome"] for c in candidate["checks"]}
         assert outcomes["on_off_cadence"] == "pass", candidate["checks"]
@@ -171,11 +173,12 @@ def test_a_batch_to_a_complete_scan_is_refused_and_writes_nothing(client, auth, 
 
 def test_one_signal_in_many_batches_of_a_scan_is_one_candidate(client, auth, db, cadence):
     register(client, auth)
-    scan_ids = [post_scan(client, auth, body) for body in cadence.scans[:3]]
+    scan_ids = [post_scan(client, auth, body) for body in cadence.scans]
     sky_hits = [
-        [h for h in hits if abs(h["frequency_hz"] - cadence.sky_frequencies_hz[0]) < 50_000.0]
-        for hits in cadence.hits[:3]
+        [h for h in hits if abs(h["frequency_hz"] - cadence.sky_frequencies_hz[0]) < 20_000.0]
+        for hits in cadence.hits
     ]
+    assert [len(h) for h in sky_hits] == [1, 0, 1, 0, 1, 0]
     for scan_id, hits in zip(scan_ids, sky_hits, strict=True):
         for _ in range(7):  # the pipeline resends the same hit in seven one-hit batches
             assert post_batch(client, auth, scan_id, hits).status_code == 201
