@@ -249,7 +249,7 @@ def create_observation(
 
 def complete_observation(session: Session, actor: Actor, observation_id: int) -> list[int]:
     """The pipeline says every hit of the scan is in: close it and screen its cadence."""
-    observation = session.get(Observation, observation_id, with_for_update=True)
+    observation = session.get(Observation, observation_id, with_for_update={"of": Observation})
     if observation is None:
         raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
     return scans.complete_scan(session, actor, observation, scans.ENDPOINT)

@@ -100,7 +100,7 @@ def close_stale_scans(
         select(Observation)
         .where(Observation.completed_at.is_(None), or_(activity <= cutoff))
         .order_by(Observation.start, Observation.id)
-        .with_for_update()
+        .with_for_update(of=Observation)
     ).scalars()
     closed = []
     for observation in list(stale):
