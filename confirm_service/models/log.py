@@ -85,6 +85,7 @@ class Observation(Base):
     last_ingest_at: Mapped[datetime | None]
     completed_at: Mapped[datetime | None]
     completed_by: Mapped[str | None] = mapped_column(String(16))
+    screened_run_id: Mapped[int | None]
 
     site: Mapped[Site] = relationship(lazy="joined")
     target: Mapped[Target | None] = relationship(lazy="joined")

@@ -233,6 +233,58 @@ class OccupancyHits:
         return cls(nothing, nothing, nothing, nothing)
 
 
+@dataclass(frozen=True)
+class Decisions:
+    """Hits and their reason codes, as parallel arrays (never one object per hit)."""
+
+    ids: IntArray
+    codes: IntArray
+
+    @classmethod
+    def empty(cls) -> Decisions:
+        return cls(np.empty(0, dtype=np.int64), np.empty(0, dtype=np.int64))
+
+    @classmethod
+    def of(cls, ids: Sequence[int] | IntArray, reason: Reason) -> Decisions:
+        """Every hit of ``ids`` with one reason."""
+        hit_ids = np.asarray(ids, dtype=np.int64)
+        return cls(hit_ids, np.full(hit_ids.size, code_of(reason), dtype=np.int64))
+
+    def __add__(self, other: Decisions) -> Decisions:
+        return Decisions(
+            np.concatenate([self.ids, other.ids]), np.concatenate([self.codes, other.codes])
+        )
+
+    def __len__(self) -> int:
+        return int(self.ids.size)
+
+    def by_reason(self) -> dict[Reason, IntArray]:
+        """Sorted hit ids per reason."""
+        return {
+            CODES[int(code) - 1]: np.sort(self.ids[self.codes == code])
+            for code in np.unique(self.codes)
+        }
+
+    def counts(self) -> dict[str, int]:
+        """Hits per reason name, sorted by name."""
+        values, counts = np.unique(self.codes, return_counts=True)
+        totals = {CODES[int(v) - 1].value: int(n) for v, n in zip(values, counts, strict=True)}
+        return dict(sorted(totals.items()))
+
+    def pairs(self) -> list[tuple[int, str]]:
+        """(hit id, reason name) sorted by hit id."""
+        order = np.argsort(self.ids, kind="stable")
+        names = [reason.value for reason in CODES]
+        return [
+            (hit, names[code - 1])
+            for hit, code in zip(self.ids[order].tolist(), self.codes[order].tolist(), strict=True)
+        ]
+
+    def digest(self) -> str:
+        """SHA-256 over the sorted ``id:reason`` lines (see :func:`decided_digest`)."""
+        return decided_digest(self.pairs())
+
+
 @dataclass
 class CadenceOutcome:
     """Codes per scan (aligned with each scan's arrays; only pending hits change) and the
@@ -241,30 +293,17 @@ class CadenceOutcome:
     codes: list[IntArray]
     signals: list[list[tuple[int, int]]] = field(default_factory=list)
 
-    def decided(self, scans: Sequence[ScanHits]) -> list[tuple[int, Reason]]:
-        """(hit id, reason) of every hit this run decided, sorted by hit id."""
-        pairs: list[tuple[int, Reason]] = []
-        for scan, codes in zip(scans, self.codes, strict=True):
-            mask = scan.pending & (codes != PENDING)
-            pairs += [
-                (int(i), CODES[int(c) - 1])
-                for i, c in zip(scan.hit_id[mask], codes[mask], strict=True)
-            ]
-        return sorted(pairs)
-
-    def counts(self, scans: Sequence[ScanHits]) -> dict[str, int]:
-        """Hits this run decided per reason, plus ``pending`` (still undecided)."""
-        totals: dict[str, int] = {}
-        pending = 0
-        for scan, codes in zip(scans, self.codes, strict=True):
-            judged = codes[scan.pending]
-            pending += int(np.count_nonzero(judged == PENDING))
-            values, counts = np.unique(judged[judged != PENDING], return_counts=True)
-            for value, count in zip(values, counts, strict=True):
-                name = CODES[int(value) - 1].value
-                totals[name] = totals.get(name, 0) + int(count)
-        totals["pending"] = pending
-        return dict(sorted(totals.items()))
+    def decided(self, scans: Sequence[ScanHits]) -> Decisions:
+        """The hits this run decided, with their codes."""
+        masks = [
+            scan.pending & (codes != PENDING) for scan, codes in zip(scans, self.codes, strict=True)
+        ]
+        if not masks:
+            return Decisions.empty()
+        return Decisions(
+            np.concatenate([scan.hit_id[m] for scan, m in zip(scans, masks, strict=True)]),
+            np.concatenate([codes[m] for codes, m in zip(self.codes, masks, strict=True)]),
+        )
 
 
 def decided_digest(pairs: Sequence[tuple[int, str]]) -> str:

@@ -25,6 +25,8 @@ from confirm_service.models import Detection, Observation, ScreeningRun
 from confirm_service.protocol import LoadedProtocol, default_physics_context
 from confirm_service.protocol.screening import (
     BandEdges,
+    Decisions,
+    IntArray,
     OccupancyHits,
     Reason,
     ScanHits,
@@ -33,6 +35,7 @@ from confirm_service.protocol.screening import (
     screen_cadence,
 )
 from confirm_service.services import facts as factbook
+from confirm_service.services.hit_arrays import ScanKey, after_run, hit_tables
 from confirm_service.services.protocols import configured_protocol, ensure_recorded
 
 SPEED_OF_LIGHT_M_S = 299_792_458.0
@@ -52,6 +55,13 @@ class ScanRow:
     frequency_max_hz: float
     on_source: bool
     complete: bool
+    detection_count: int = 0
+    screened_run_id: int | None = None
+
+    @property
+    def key(self) -> ScanKey:
+        """What identifies the state of the scan's hits (for the array cache)."""
+        return ScanKey(self.id, self.detection_count, self.screened_run_id, self.complete)
 
 
 def cadence_scans(session: Session, observation: Observation) -> list[Observation]:
@@ -79,35 +89,8 @@ def _scan_row(observation: Observation) -> ScanRow:
         observation.frequency_max_hz,
         observation.on_source,
         observation.completed_at is not None,
-    )
-
-
-def _hit_columns(session: Session, observation_ids: Sequence[int], max_id: int | None = None):  # type: ignore[no-untyped-def]
-    """(observation id, id, frequency, drift, snr, offset, pending) arrays of the scans' hits."""
-    connection = session.connection()
-    marker = "%s" if connection.dialect.paramstyle in ("format", "pyformat") else "?"
-    places = ", ".join([marker] * len(observation_ids))
-    statement = (
-        "SELECT observation_id, id, frequency_hz, drift_hz_s, snr, time_offset_s, "
-        f"screen_reason IS NULL FROM detections WHERE observation_id IN ({places})"
-    )
-    parameters: list[Any] = list(observation_ids)
-    if max_id is not None:
-        statement += f" AND id <= {marker}"
-        parameters.append(max_id)
-    rows = connection.exec_driver_sql(statement, tuple(parameters)).fetchall()
-    if not rows:
-        empty = np.empty(0)
-        return (empty.astype(np.int64),) * 2 + (empty,) * 4 + (empty.astype(bool),)
-    columns = list(zip(*rows, strict=True))
-    return (
-        np.fromiter(columns[0], dtype=np.int64, count=len(rows)),
-        np.fromiter(columns[1], dtype=np.int64, count=len(rows)),
-        np.fromiter(columns[2], dtype=np.float64, count=len(rows)),
-        np.fromiter(columns[3], dtype=np.float64, count=len(rows)),
-        np.fromiter(columns[4], dtype=np.float64, count=len(rows)),
-        np.fromiter(columns[5], dtype=np.float64, count=len(rows)),
-        np.fromiter(columns[6], dtype=bool, count=len(rows)),
+        observation.detection_count,
+        observation.screened_run_id,
     )
 
 
@@ -141,17 +124,11 @@ def scan_hits(
     A hit is pending when it has no screening reason yet (``all_pending``: every hit, for a
     replay that then removes what was decided before the run it replays).
     """
-    owner, ids, frequency, drift, snr, offset, pending = _hit_columns(
-        session, [s.id for s in scans]
-    )
-    if all_pending:
-        pending = np.ones(ids.size, dtype=bool)
-    start_frequency = frequency - drift * offset
+    tables = hit_tables(session, [s.key for s in scans], cached=not all_pending)
     doppler, earth_per_hz = _doppler(observation, scans, target)
     result = []
     for k, scan in enumerate(scans):
-        mine = np.nonzero(owner == scan.id)[0]
-        mine = mine[np.argsort(start_frequency[mine], kind="stable")]
+        table = tables[scan.id]
         result.append(
             ScanHits(
                 observation_id=scan.id,
@@ -164,26 +141,14 @@ def scan_hits(
                 complete=scan.complete,
                 doppler_factor=float(doppler[k]),
                 earth_drift_per_hz=float(earth_per_hz[k]),
-                hit_id=ids[mine],
-                frequency_hz=start_frequency[mine],
-                drift_hz_s=drift[mine],
-                snr=snr[mine],
-                pending=pending[mine],
+                hit_id=table.hit_id,
+                frequency_hz=table.frequency_hz,
+                drift_hz_s=table.drift_hz_s,
+                snr=table.snr,
+                pending=np.ones(table.hit_id.size, dtype=bool) if all_pending else table.pending,
             )
         )
     return result
-
-
-def _scan_attributes(
-    session: Session, observation_ids: Sequence[int]
-) -> dict[int, tuple[float, float]]:
-    """observation id -> (channel width Hz, duration s)."""
-    rows = session.execute(
-        select(Observation.id, Observation.channel_width_hz, Observation.duration_s).where(
-            Observation.id.in_(observation_ids)
-        )
-    ).all()
-    return {row[0]: (row[1], row[2]) for row in rows}
 
 
 def occupancy_scan_ids(
@@ -218,19 +183,32 @@ def occupancy_hits(
     """The hits of ``observation_ids`` (up to ``max_detection_id``), sorted by start frequency."""
     if not observation_ids:
         return OccupancyHits.empty()
-    owner, _, frequency, drift, _, offset, _ = _hit_columns(
-        session, observation_ids, max_detection_id
-    )
-    if owner.size == 0:
+    scans = session.execute(
+        select(
+            Observation.id,
+            Observation.channel_width_hz,
+            Observation.duration_s,
+            Observation.detection_count,
+            Observation.screened_run_id,
+            Observation.completed_at,
+        ).where(Observation.id.in_(observation_ids))
+    ).all()
+    keys = [ScanKey(row[0], row[3], row[4], row[5] is not None) for row in scans]
+    tables = hit_tables(session, keys)
+    parts = [(tables[row[0]], np.full(tables[row[0]].hit_id.size, row[1]), row[2]) for row in scans]
+    if not parts:
         return OccupancyHits.empty()
-    attributes = _scan_attributes(session, observation_ids)
-    width = np.array([attributes[int(o)][0] for o in owner.tolist()])
-    duration = np.array([attributes[int(o)][1] for o in owner.tolist()])
-    start_frequency = frequency - drift * offset
-    order = np.argsort(start_frequency, kind="stable")
-    return OccupancyHits(
-        start_frequency[order], drift[order], (width / duration)[order], width[order]
-    )
+    frequency = np.concatenate([t.frequency_hz for t, _, _ in parts])
+    drift = np.concatenate([t.drift_hz_s for t, _, _ in parts])
+    width = np.concatenate([w for _, w, _ in parts])
+    resolution = np.concatenate([w / duration for _, w, duration in parts])
+    if max_detection_id is not None:
+        keep = np.concatenate([t.hit_id for t, _, _ in parts]) <= max_detection_id
+        frequency, drift, width, resolution = (
+            a[keep] for a in (frequency, drift, width, resolution)
+        )
+    order = np.argsort(frequency, kind="stable")
+    return OccupancyHits(frequency[order], drift[order], resolution[order], width[order])
 
 
 @dataclass
@@ -243,34 +221,32 @@ class RunSummary:
     candidate_ids: list[int]
 
 
-def _linked_pending(session: Session, scans: Sequence[ScanHits]) -> dict[int, int]:
+def _linked_pending(session: Session, scans: Sequence[ScanHits]) -> IntArray:
     """Pending hits of the scans that an existing candidate's evaluation already linked."""
     from confirm_service.models import CandidateDetection
 
-    pending = {int(i) for scan in scans for i in scan.hit_id[scan.pending].tolist()}
-    if not pending:
-        return {}
-    rows = session.execute(
-        select(CandidateDetection.detection_id, CandidateDetection.candidate_id).where(
+    linked = session.execute(
+        select(CandidateDetection.detection_id).where(
             CandidateDetection.observation_id.in_([scan.observation_id for scan in scans])
         )
-    ).all()
-    return {row[0]: row[1] for row in rows if row[0] in pending}
+    ).scalars()
+    candidates = np.fromiter(linked, dtype=np.int64)
+    pending = np.concatenate([scan.hit_id[scan.pending] for scan in scans] or [candidates[:0]])
+    return np.intersect1d(pending, candidates)
 
 
-def _without(scans: Sequence[ScanHits], hit_ids: set[int]) -> list[ScanHits]:
+def _without(scans: Sequence[ScanHits], hit_ids: IntArray) -> list[ScanHits]:
     """The scans with ``hit_ids`` no longer pending."""
-    if not hit_ids:
+    if hit_ids.size == 0:
         return list(scans)
-    wanted = np.fromiter(hit_ids, dtype=np.int64, count=len(hit_ids))
-    return [replace(scan, pending=scan.pending & ~np.isin(scan.hit_id, wanted)) for scan in scans]
+    return [replace(scan, pending=scan.pending & ~np.isin(scan.hit_id, hit_ids)) for scan in scans]
 
 
 @dataclass
 class Judgement:
     """Reasons decided for pending hits of a cadence and the surviving signals."""
 
-    decided: dict[int, Reason]
+    decided: Decisions
     signals: list[list[tuple[int, int, float]]]
     occupancy_ids: list[int]
 
@@ -281,7 +257,7 @@ def judge_cadence(
     rows: Sequence[ScanRow],
     protocol: LoadedProtocol,
     max_detection_id: int | None,
-    not_pending: set[int] | None = None,
+    not_pending: IntArray | None = None,
     occupancy_ids: Sequence[int] | None = None,
 ) -> Judgement:
     """Judge every pending hit of the complete scans in ``rows`` (one cadence at one site).
@@ -294,7 +270,7 @@ def judge_cadence(
 
     rules = ScreeningRules.from_protocol(protocol.model)
     bands = BandEdges.of(protocol.bands)
-    decided: dict[int, Reason] = {}
+    decided = Decisions.empty()
     signals: list[list[tuple[int, int, float]]] = []
     used_occupancy: list[int] = []
     targets = sorted({r.target_id for r in rows if r.on_source and r.target_id is not None})
@@ -304,11 +280,12 @@ def judge_cadence(
         scans = [
             _judged_in_pass(scan, row, target_id) for scan, row in zip(scans, rows, strict=True)
         ]
-        scans = _without(scans, set(decided) | (not_pending or set()))
+        given = decided.ids if not_pending is None else np.concatenate([decided.ids, not_pending])
+        scans = _without(scans, given)
         if not_pending is None:
             linked = _linked_pending(session, scans)
-            decided.update({hit: Reason.LINKED for hit in linked})
-            scans = _without(scans, set(linked))
+            decided = decided + Decisions.of(linked, Reason.LINKED)
+            scans = _without(scans, linked)
         if occupancy_ids is None:
             ids = occupancy_scan_ids(session, observation, rows, target_id, rules.occupancy_span_s)
         else:
@@ -316,7 +293,7 @@ def judge_cadence(
         used_occupancy += [i for i in ids if i not in used_occupancy]
         occupancy = occupancy_hits(session, ids, max_detection_id)
         outcome = screen_cadence(scans, rules, bands, occupancy, observation.cadence is not None)
-        decided.update(dict(outcome.decided(scans)))
+        decided = decided + outcome.decided(scans)
         signals += [
             [
                 (int(scans[k].hit_id[p]), scans[k].observation_id, float(scans[k].snr[p]))
@@ -334,42 +311,30 @@ def _judged_in_pass(scan: ScanHits, row: ScanRow, target_id: int | None) -> Scan
     return scan
 
 
-def write_reasons(session: Session, run_id: int, decided: dict[int, Reason]) -> None:
+UPDATE_CHUNK = 10_000
+"""Ids per SQLite UPDATE (its default limit is 32,766 bound parameters)."""
+
+
+def write_reasons(session: Session, run_id: int, decided: Decisions) -> None:
     """One UPDATE per reason (ids in chunks): reasons and the run id, no ORM object per hit."""
-    by_reason: dict[Reason, list[int]] = {}
-    for hit_id, reason in decided.items():
-        by_reason.setdefault(reason, []).append(hit_id)
     connection = session.connection()
     postgres = connection.dialect.name == "postgresql"
-    for reason, ids in sorted(by_reason.items()):
-        ids.sort()
+    for reason, ids in decided.by_reason().items():
         if postgres:
             connection.exec_driver_sql(
                 "UPDATE detections SET screen_reason = %s, screening_run_id = %s "
                 "WHERE id = ANY(%s)",
-                (reason.value, run_id, ids),
+                (reason.value, run_id, ids.tolist()),
             )
             continue
-        for first in range(0, len(ids), UPDATE_CHUNK):
-            chunk = ids[first : first + UPDATE_CHUNK]
+        for first in range(0, ids.size, UPDATE_CHUNK):
+            chunk = ids[first : first + UPDATE_CHUNK].tolist()
             places = ", ".join("?" * len(chunk))
             connection.exec_driver_sql(
                 "UPDATE detections SET screen_reason = ?, screening_run_id = ? "
                 f"WHERE id IN ({places})",
                 (reason.value, run_id, *chunk),
             )
-
-
-UPDATE_CHUNK = 10_000
-"""Ids per SQLite UPDATE (its default limit is 32,766 bound parameters)."""
-
-
-def counts_of(decided: dict[int, Reason]) -> dict[str, int]:
-    """Hits per reason, sorted by reason name."""
-    counts: dict[str, int] = {}
-    for reason in decided.values():
-        counts[reason.value] = counts.get(reason.value, 0) + 1
-    return dict(sorted(counts.items()))
 
 
 def _pending_count(session: Session, observation_ids: Sequence[int]) -> int:
@@ -396,13 +361,11 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
     protocol = configured_protocol(session)
     ensure_recorded(session, actor, protocol)
     members = cadence_scans(session, observation)
-    rows = [_scan_row(o) for o in members]
-    complete = [r for r in rows if r.complete]
+    complete_members = [o for o in members if o.completed_at is not None]
+    complete = [_scan_row(o) for o in complete_members]
     max_detection_id = session.execute(select(func.max(Detection.id))).scalar_one()
     judgement = judge_cadence(session, observation, complete, protocol, max_detection_id)
-    decided = dict(judgement.decided)
-    decided.update(_untargeted(session, complete, set(decided)))
-    digest = decided_digest([(h, r.value) for h, r in decided.items()])
+    decided = judgement.decided + _untargeted(session, complete, judgement.decided.ids)
     run = ScreeningRun(
         site_id=observation.site_id,
         cadence=observation.cadence,
@@ -412,13 +375,16 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
         occupancy_max_detection_id=max_detection_id,
         protocol_sha256=protocol.content_sha256,
         bands_sha256=protocol.bands_sha256,
-        counts=counts_of(decided),
-        decided_sha256=digest,
+        counts=decided.counts(),
+        decided_sha256=decided.digest(),
         candidate_ids=[],
     )
     session.add(run)
     session.flush()
     write_reasons(session, run.id, decided)
+    for member in complete_members:
+        member.screened_run_id = run.id
+    after_run(session, [r.key for r in complete], decided.ids, run.id)
     candidate_ids = intake.candidates_from_signals(session, actor, judgement.signals)
     run.candidate_ids = candidate_ids
     run.pending = _pending_count(session, [r.id for r in complete])
@@ -437,31 +403,32 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
             "bands_sha256": protocol.bands_sha256,
             "counts": run.counts,
             "pending": run.pending,
-            "decided_sha256": digest,
+            "decided_sha256": run.decided_sha256,
             "candidate_ids": candidate_ids,
         },
     )
-    return RunSummary(run.id, run.counts, digest, candidate_ids)
+    return RunSummary(run.id, run.counts, run.decided_sha256, candidate_ids)
 
 
 def _untargeted(
     session: Session,
     rows: Sequence[ScanRow],
-    decided: set[int],
-    not_pending: set[int] | None = None,
-) -> dict[int, Reason]:
+    decided: IntArray,
+    not_pending: IntArray | None = None,
+) -> Decisions:
     """Pending hits of on-source scans without a target: nothing to follow them up on.
 
     Pending means no reason yet, or (for a replay) not in ``not_pending``.
     """
     ids = [r.id for r in rows if r.on_source and r.target_id is None]
     if not ids:
-        return {}
+        return Decisions.empty()
     query = select(Detection.id).where(Detection.observation_id.in_(ids))
     if not_pending is None:
         query = query.where(Detection.screen_reason.is_(None))
-    skip = decided | (not_pending or set())
-    return {hit: Reason.NO_TARGET for hit in session.execute(query).scalars() if hit not in skip}
+    found = np.fromiter(session.execute(query).scalars(), dtype=np.int64)
+    skip = decided if not_pending is None else np.concatenate([decided, not_pending])
+    return Decisions.of(found[~np.isin(found, skip)], Reason.NO_TARGET)
 
 
 @dataclass
@@ -518,31 +485,29 @@ def replay_run(session: Session, run_id: int) -> RunReplay:
             ),
         )
     ).all()
-    not_pending = {hit for hit, reason, by in given if by != run.id or reason != Reason.LINKED}
-    linked = {
-        hit: Reason.LINKED for hit, reason, by in given if by == run.id and reason == "linked"
-    }
+    linked = [hit for hit, reason, by in given if by == run.id and reason == Reason.LINKED]
+    not_pending = np.array([hit for hit, _, _ in given], dtype=np.int64)
     judgement = judge_cadence(
         session,
         observation,
         rows,
         protocol,
         run.occupancy_max_detection_id,
-        not_pending | set(linked),
+        not_pending,
         run.occupancy_observation_ids,
     )
-    decided = {**judgement.decided, **linked}
-    decided.update(_untargeted(session, rows, set(decided), not_pending | set(linked)))
+    decided = judgement.decided + Decisions.of(linked, Reason.LINKED)
+    decided = decided + _untargeted(session, rows, decided.ids, not_pending)
     stored = session.execute(
         select(Detection.id, Detection.screen_reason).where(Detection.screening_run_id == run.id)
     ).all()
     return RunReplay(
         run.id,
         run.decided_sha256,
-        decided_digest([(h, r.value) for h, r in decided.items()]),
+        decided.digest(),
         decided_digest([(h, str(r)) for h, r in stored]),
         dict(run.counts),
-        counts_of(decided),
+        decided.counts(),
     )
 
 

@@ -269,9 +269,15 @@ def test_the_sky_fixed_signal_survives_and_interference_does_not():
     # the digest is a SHA-256 over sorted "id:reason" lines (hashlib, FIPS 180-4)
     import hashlib
 
-    pairs = outcome.decided(arrays)
-    text = "".join(f"{i}:{r.value}\n" for i, r in pairs)
-    assert (
-        decided_digest([(i, r.value) for i, r in pairs])
-        == hashlib.sha256(text.encode()).hexdigest()
-    )
+    decisions = outcome.decided(arrays)
+    assert decisions.pairs() == [
+        (1, "present_off_source"), (2, "survived"), (3, "absent_on_source"),
+        (4, "off_source_scan"), (5, "present_off_source"), (6, "survived"),
+        (7, "absent_on_source"),
+    ]  # fmt: skip
+    text = "".join(f"{i}:{r}\n" for i, r in decisions.pairs())
+    assert decisions.digest() == decided_digest(decisions.pairs())
+    assert decisions.digest() == hashlib.sha256(text.encode()).hexdigest()
+    assert decisions.counts() == {
+        "absent_on_source": 2, "off_source_scan": 1, "present_off_source": 2, "survived": 2
+    }  # fmt: skip
