@@ -196,7 +196,8 @@ def main() -> int:
     args = parser.parse_args()
     site, target = SITES[0], TARGETS[0]
     start = first_window(site, target, datetime(2026, 11, 20, tzinfo=UTC), 6 * 260)
-    warm = make_cadence(site, target, start - timedelta(days=1), 200, seed=2, sky_signals=0)
+    # the warm-up cadence: earlier the same night, so the day's physics tables are built
+    warm = make_cadence(site, target, start - timedelta(hours=3), 200, seed=2, sky_signals=0)
     cadence = make_cadence(site, target, start, args.hits_per_scan, seed=1)
     folder = Path(tempfile.mkdtemp(prefix="bench-triage-"))
     raw = raw_sqlite_rate(f"sqlite:///{folder / 'raw.db'}", cadence)

@@ -316,37 +316,34 @@ UPDATE_CHUNK = 10_000
 
 
 def write_reasons(session: Session, run_id: int, decided: Decisions) -> None:
-    """One UPDATE per reason (ids in chunks): reasons and the run id, no ORM object per hit."""
+    """One UPDATE per reason (ids in chunks) on the raw cursor: no ORM object, no per-hit call."""
     connection = session.connection()
     postgres = connection.dialect.name == "postgresql"
-    for reason, ids in decided.by_reason().items():
-        if postgres:
-            connection.exec_driver_sql(
-                "UPDATE detections SET screen_reason = %s, screening_run_id = %s "
-                "WHERE id = ANY(%s)",
-                (reason.value, run_id, ids.tolist()),
-            )
-            continue
-        for first in range(0, ids.size, UPDATE_CHUNK):
-            chunk = ids[first : first + UPDATE_CHUNK].tolist()
-            places = ", ".join("?" * len(chunk))
-            connection.exec_driver_sql(
-                "UPDATE detections SET screen_reason = ?, screening_run_id = ? "
-                f"WHERE id IN ({places})",
-                (reason.value, run_id, *chunk),
-            )
+    cursor = connection.connection.driver_connection.cursor()  # type: ignore[union-attr]
+    try:
+        for reason, ids in decided.by_reason().items():
+            if postgres:
+                cursor.execute(
+                    "UPDATE detections SET screen_reason = %s, screening_run_id = %s "
+                    "WHERE id = ANY(%s)",
+                    (reason.value, run_id, ids.tolist()),
+                )
+                continue
+            for first in range(0, ids.size, UPDATE_CHUNK):
+                chunk = ids[first : first + UPDATE_CHUNK].tolist()
+                cursor.execute(
+                    "UPDATE detections SET screen_reason = ?, screening_run_id = ? "
+                    f"WHERE id IN ({', '.join('?' * len(chunk))})",
+                    (reason.value, run_id, *chunk),
+                )
+    finally:
+        cursor.close()
 
 
-def _pending_count(session: Session, observation_ids: Sequence[int]) -> int:
-    if not observation_ids:
-        return 0
-    return int(
-        session.execute(
-            select(func.count())
-            .select_from(Detection)
-            .where(Detection.observation_id.in_(observation_ids), Detection.screen_reason.is_(None))
-        ).scalar_one()
-    )
+def _pending_count(session: Session, keys: Sequence[ScanKey]) -> int:
+    """Hits of these complete scans still waiting for a decision (from the kept arrays)."""
+    tables = hit_tables(session, keys)
+    return int(sum(np.count_nonzero(table.pending) for table in tables.values()))
 
 
 def screen_after_completion(session: Session, actor: Actor, observation: Observation) -> RunSummary:
@@ -387,7 +384,9 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
     after_run(session, [r.key for r in complete], decided.ids, run.id)
     candidate_ids = intake.candidates_from_signals(session, actor, judgement.signals)
     run.candidate_ids = candidate_ids
-    run.pending = _pending_count(session, [r.id for r in complete])
+    run.pending = _pending_count(
+        session, [replace(r.key, screened_run_id=run.id) for r in complete]
+    )
     record(
         session,
         actor,
