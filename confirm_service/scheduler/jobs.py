@@ -19,12 +19,12 @@ from typing import Any
 
 from sqlalchemy import select
 
+from confirm_service.actor import Actor
 from confirm_service.audit.checkpoints import latest_checkpoint, take_checkpoint
 from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
 from confirm_service.models import Candidate, SchedulerRun
-from confirm_service.services.actor import Actor
 from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)

@@ -15,7 +15,9 @@ from typing import Any
 from sqlalchemy import and_, event, func, or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, Forbidden, Invalid, NotFound
 from confirm_service.models import (
     Candidate,
     CandidateDetection,
@@ -42,8 +44,6 @@ from confirm_service.protocol.reference import PhysicsContext
 from confirm_service.schemas.log import DetectionIn
 from confirm_service.services import facts as factbook
 from confirm_service.services import protocols, runtime
-from confirm_service.services.actor import SYSTEM, Actor
-from confirm_service.services.errors import Conflict, Forbidden, Invalid, NotFound
 from confirm_service.timeutil import utc_now
 
 SAME_SIGNAL_SEARCH_HZ = 100_000.0

@@ -14,12 +14,12 @@ from pathlib import Path
 from sqlalchemy import select, update
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.config import ConfigError
+from confirm_service.errors import NotFound
 from confirm_service.models import ProtocolRecord
 from confirm_service.protocol import LoadedProtocol, ProtocolError, load_protocol
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import NotFound
 
 _lock = threading.Lock()
 _by_hash: dict[tuple[str, str], LoadedProtocol] = {}

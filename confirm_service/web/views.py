@@ -31,9 +31,11 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 from werkzeug.exceptions import HTTPException
 
+from confirm_service.actor import Actor
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.db import Database
 from confirm_service.dossier.plots import site_residual_panels
+from confirm_service.errors import ServiceError
 from confirm_service.models import Candidate, Target
 from confirm_service.schemas.candidates import (
     CandidateOut,
@@ -45,8 +47,6 @@ from confirm_service.schemas.candidates import (
 from confirm_service.schemas.queries import CandidateQuery
 from confirm_service.services import candidate_views
 from confirm_service.services import candidates as candidate_service
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
 from confirm_service.web import auth
 
 bp = Blueprint(

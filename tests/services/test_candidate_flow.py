@@ -11,10 +11,10 @@ import threading
 
 from sqlalchemy import func, select
 
+from confirm_service.actor import SYSTEM
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.demo import SITES, TARGETS, scenario_scans
 from confirm_service.models import AuditEntry, CheckResult, FollowUpRequest, StageTransition
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 
 RATIONALE = "Reviewed the checks and the linked detections; consistent with a sky-fixed source."

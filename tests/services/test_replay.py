@@ -80,7 +80,7 @@ def test_replay_is_read_only_deterministic_and_selective(client, auth, db, tmp_p
 def test_admin_adoption_re_evaluates_open_candidates(client, auth, db, tmp_path):
     candidates = post_scenario(client, auth)
     sky = next(c for c in candidates if c["stage"] == "review")
-    from confirm_service.services.actor import SYSTEM
+    from confirm_service.actor import SYSTEM
 
     with db.write() as session:
         moved = adopt_protocol(session, SYSTEM, load_configured(tightened_protocol(tmp_path)))
