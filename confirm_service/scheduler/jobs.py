@@ -15,7 +15,6 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime
 from importlib import import_module
-from typing import Any
 
 from sqlalchemy import select
 
@@ -25,6 +24,7 @@ from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
 from confirm_service.models import Candidate, SchedulerRun
+from confirm_service.services import evaluation
 from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)
@@ -38,22 +38,9 @@ def runner_name() -> str:
     return f"{socket.gethostname()}:{os.getpid()}"
 
 
-def _candidates_module() -> Any:
-    """Where evaluation lives (``services.evaluation`` once split, else ``services.candidates``)."""
-    for name in ("confirm_service.services.evaluation", "confirm_service.services.candidates"):
-        try:
-            module = import_module(name)
-        except ModuleNotFoundError:
-            continue
-        if hasattr(module, "reevaluate") and hasattr(module, "locked_candidate"):
-            return module
-    raise RuntimeError("no evaluation service found")
-
-
 def sweep_deadlines(database: Database, settings: Settings, now: datetime) -> str:
     """Re-evaluate every open candidate at ``now``: passed stage deadlines escalate or expire
     it, and checks whose waiting time ran out are decided. One transaction per candidate."""
-    evaluation = _candidates_module()
     with database.read() as session:
         ids = list(
             session.execute(

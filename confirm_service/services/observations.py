@@ -138,9 +138,9 @@ def _trigger_candidates(
     rows: Sequence[DetectionIn],
     ids: list[int],
 ) -> list[int]:
-    from confirm_service.services import candidates
+    from confirm_service.services import intake
 
-    return candidates.on_new_data(session, actor, observation, rows, ids)
+    return intake.on_new_data(session, actor, observation, rows, ids)
 
 
 def ingest_detections(

@@ -85,7 +85,7 @@ def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
 
     # evaluation is idempotent: re-evaluating with no new data writes nothing
     from confirm_service.models import Candidate
-    from confirm_service.services.candidates import reevaluate
+    from confirm_service.services.evaluation import reevaluate
 
     results, entries = count(db, CheckResult), count(db, AuditEntry)
     with db.write() as session:

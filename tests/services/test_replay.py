@@ -12,7 +12,8 @@ from confirm_service.cli import main
 from confirm_service.cli.context import settings
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.models import AuditEntry, CheckResult
-from confirm_service.services.protocols import adopt_protocol, load_configured
+from confirm_service.services.adoption import adopt_protocol
+from confirm_service.services.protocols import load_configured
 from confirm_service.services.replay import replay
 from tests.services.test_candidate_flow import post_scenario
 
