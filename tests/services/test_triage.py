@@ -11,12 +11,13 @@ from __future__ import annotations
 from datetime import UTC, datetime, timedelta
 
 import pytest
+from click.testing import CliRunner
 from sqlalchemy import func, select
 
-from confirm_service.actor import SYSTEM
+from confirm_service.cli import main
+from confirm_service.cli.context import settings as cli_settings
 from confirm_service.demo import SITES, TARGETS, first_window
 from confirm_service.models import AuditEntry, Candidate, Detection, Observation
-from confirm_service.services import scans as scan_service
 from confirm_service.services.screening import replay_runs
 from confirm_service.synthetic import batches, make_cadence
 
@@ -122,7 +123,9 @@ def test_registered_scans_streamed_hits_and_completion(client, auth, db, cadence
     assert replays and all(r.reproduced for r in replays)
 
 
-def test_stale_scans_are_closed_after_the_quiet_period(client, auth, db, cadence):
+def test_stale_scans_are_closed_after_the_quiet_period(
+    app, client, auth, db, database_url, cadence
+):
     register(client, auth)
     scan_ids = [post_scan(client, auth, body) for body in cadence.scans]
     for scan_id, hits in zip(scan_ids, cadence.hits, strict=True):
@@ -131,12 +134,23 @@ def test_stale_scans_are_closed_after_the_quiet_period(client, auth, db, cadence
     assert candidates(client, auth) == []  # nothing judged while the scans are open
     with db.read() as session:
         last = max(o.last_ingest_at for o in session.execute(select(Observation)).scalars())
-    with db.write() as session:
-        early = scan_service.close_stale_scans(session, SYSTEM, last + timedelta(seconds=60), 600)
-    assert early == []
-    with db.write() as session:
-        closed = scan_service.close_stale_scans(session, SYSTEM, last + timedelta(hours=1), 600)
-    assert closed == scan_ids
+    env = {
+        "CONFIRM_DATABASE_URL": database_url,
+        "CONFIRM_INSTANCE_PATH": str(app.instance_path),
+        "CONFIRM_SCAN_QUIET_PERIOD_S": "600",
+    }
+
+    def run_due(at):
+        cli_settings.cache_clear()
+        result = CliRunner().invoke(
+            main, ["scheduler", "run-due", "--now", at.isoformat()], env=env
+        )
+        cli_settings.cache_clear()
+        assert result.exit_code == 0, result.output
+        return result.output
+
+    assert "0 stale scan(s) closed" in run_due(last + timedelta(seconds=60))
+    assert f"{len(scan_ids)} stale scan(s) closed" in run_due(last + timedelta(hours=1))
     assert_only_the_sky_signals(client, auth, cadence, scan_ids)
     with db.read() as session:
         entries = session.execute(
