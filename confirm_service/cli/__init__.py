@@ -41,6 +41,7 @@ def _register() -> None:
         physics,
         protocol,
         scheduler,
+        screening,
         serve,
         tokens,
     )

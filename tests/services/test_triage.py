@@ -203,7 +203,7 @@ def test_one_signal_in_many_batches_of_a_scan_is_one_candidate(client, auth, db,
         assert session.execute(select(func.count()).select_from(Candidate)).scalar_one() == 1
 
 
-def test_replay_notices_a_changed_reason(client, auth, db, cadence):
+def test_replay_notices_a_changed_reason(client, auth, db, database_url, cadence):
     register(client, auth)
     for body, hits in zip(cadence.scans, cadence.hits, strict=True):
         response = client.post(
@@ -220,3 +220,10 @@ def test_replay_notices_a_changed_reason(client, auth, db, cadence):
     with db.read() as session:
         replays = replay_runs(session)
     assert [r.run_id for r in replays if not r.reproduced] == [hit.screening_run_id]
+    env = {"CONFIRM_DATABASE_URL": database_url}
+    cli_settings.cache_clear()
+    replayed = CliRunner().invoke(main, ["screening", "replay"], env=env)
+    shown = CliRunner().invoke(main, ["screening", "show", "1", "2"], env=env)
+    cli_settings.cache_clear()
+    assert replayed.exit_code == 1 and f"run {hit.screening_run_id}: DIFFERS" in replayed.stdout
+    assert shown.exit_code == 0 and "off_source_scan" in shown.stdout and "pending" in shown.stdout
