@@ -5,9 +5,9 @@ from __future__ import annotations
 import datetime as dt
 import hashlib
 import json
-import re
 import math
 import random
+import re
 import shutil
 import struct
 import subprocess
