@@ -14,8 +14,10 @@ from confirm_service.models.candidates import (
 )
 from confirm_service.models.followups import FollowUpReport, FollowUpRequest
 from confirm_service.models.log import Detection, Observation, Site, Target
+from confirm_service.models.people import PERSON_ROLES, Person
 
 __all__ = [
+    "PERSON_ROLES",
     "ROLES",
     "ApiToken",
     "AuditCheckpoint",
@@ -31,6 +33,7 @@ __all__ = [
     "FollowUpRequest",
     "IdempotencyRecord",
     "Observation",
+    "Person",
     "ProtocolRecord",
     "SignOff",
     "Site",
