@@ -68,6 +68,7 @@ class SignInResult:
 
     actor: Actor | None
     locked: bool = False
+    person_id: int | None = None
 
 
 def sign_in(session: Session, username: str, password: str) -> SignInResult:
@@ -91,7 +92,7 @@ def sign_in(session: Session, username: str, password: str) -> SignInResult:
     person.failed_sign_ins = 0
     person.locked_until = None
     person.last_sign_in_at = now
-    return SignInResult(actor_of(person))
+    return SignInResult(actor_of(person), person_id=person.id)
 
 
 def actor_of(person: Person) -> Actor:
@@ -103,10 +104,15 @@ def active_actor(session: Session, person_id: int) -> Actor | None:
     person = session.get(Person, person_id)
     if person is None or person.disabled_at is not None:
         return None
-    token = session.get(ApiToken, person.token_id)
-    if token is None or token.revoked_at is not None:
+    if live_token(session, person.token_id) is None:
         return None
     return actor_of(person)
+
+
+def live_token(session: Session, token_id: int) -> ApiToken | None:
+    """The token with this id unless it is revoked."""
+    token = session.get(ApiToken, token_id)
+    return None if token is None or token.revoked_at is not None else token
 
 
 def list_people(session: Session) -> list[Person]:
