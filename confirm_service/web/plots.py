@@ -188,7 +188,9 @@ def elevation_at_sites(target: str, tracks: list[ElevationTrack]) -> str:
 
     plt = _pyplot()
     rows = max(len(tracks), 1)
-    figure, axes = plt.subplots(rows, 1, figsize=(WIDTH_IN, 1.9 * rows + 1.0), sharex=True)
+    figure, axes = plt.subplots(
+        rows, 1, figsize=(WIDTH_IN, 1.9 * rows + 1.0), sharex=True, layout="constrained"
+    )
     axes = np.atleast_1d(axes)
     for index, (ax, track) in enumerate(zip(axes, tracks, strict=False)):
         colour, line, _marker, _hatch = _style(index)
@@ -203,7 +205,15 @@ def elevation_at_sites(target: str, tracks: list[ElevationTrack]) -> str:
                 label="observable window" if number == 0 else None,
             )
         close = track.sun_too_close
-        if close.any():
+        if not close.any():
+            ax.text(
+                0.01,
+                0.04,
+                f"Sun never within {track.sun_avoidance_deg:g}° in these 48 h",
+                transform=ax.transAxes,
+                fontsize=7,
+            )
+        else:
             ax.fill_between(
                 x,
                 -30,
