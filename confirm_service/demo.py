@@ -274,9 +274,9 @@ def scenario_scans() -> list[tuple[str, dict[str, Any]]]:
 
 def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     """Create a fresh SQLite database in ``folder`` and run the scenario through the API."""
+    from confirm_service.actor import SYSTEM
     from confirm_service.app import create_app
     from confirm_service.db import upgrade_database
-    from confirm_service.services.actor import SYSTEM
     from confirm_service.services.tokens import create_token
 
     folder.mkdir(parents=True, exist_ok=False)
@@ -433,8 +433,8 @@ def dashboard_sign_in(result: DemoResult, port: int = 8080) -> list[str]:
     """Create the demo's web accounts (fresh random passwords) and say how to open the pages."""
     import secrets
 
+    from confirm_service.actor import SYSTEM
     from confirm_service.db import Database
-    from confirm_service.services.actor import SYSTEM
     from confirm_service.services.people import create_person
 
     database = Database(result.database_url)

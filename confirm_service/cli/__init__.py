@@ -75,7 +75,7 @@ class CommandGroup(click.Group):
 
     def invoke(self, ctx: click.Context) -> Any:
         from confirm_service.config import ConfigError
-        from confirm_service.services.errors import ServiceError
+        from confirm_service.errors import ServiceError
 
         try:
             return super().invoke(ctx)

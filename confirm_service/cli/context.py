@@ -9,10 +9,10 @@ from typing import Any
 
 import click
 
+from confirm_service.actor import Actor
 from confirm_service.config import ConfigError, Settings, load_settings
 from confirm_service.db import Database, make_engine
 from confirm_service.services import runtime
-from confirm_service.services.actor import Actor
 
 
 @cache

@@ -14,11 +14,11 @@ from typing import Any
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.models import Candidate, CheckResult, FollowUpRequest, Site
 from confirm_service.protocol import SignoffStatus, signoff_statuses
 from confirm_service.schemas.candidates import CandidateSummary
 from confirm_service.services import candidate_views, facts
-from confirm_service.services.actor import Actor
 from confirm_service.services.protocols import protocol_for
 
 DEADLINE_HORIZON = timedelta(days=1)

@@ -23,10 +23,10 @@ from confirm_service.models import (
     Site,
     Target,
 )
-from confirm_service.protocol import reference_of
-from confirm_service.services import candidates as candidate_service
+from confirm_service.protocol import default_physics_context, reference_of
 from confirm_service.services import facts as factbook
 from confirm_service.services.candidate_views import get_candidate
+from confirm_service.services.protocols import protocol_of
 from confirm_service.services.sites import all_sites, target_by_name
 from confirm_service.timeutil import utc_now
 
@@ -76,8 +76,8 @@ class CandidateTracks:
 
 def _measurement(session: Session, candidate: Candidate) -> tuple[object, object]:
     """The reference signal as a physics measurement, and the target's coordinates."""
-    protocol = candidate_service.protocol_of(session, candidate)
-    context = candidate_service.physics_context()
+    protocol = protocol_of(session, candidate)
+    context = default_physics_context()
     facts = factbook.candidate_facts(session, candidate, protocol, utc_now().timestamp(), context)
     signal = reference_of(facts, protocol.model, context)
     site = facts.reference_observation.site
@@ -117,7 +117,7 @@ def candidate_tracks(session: Session, candidate_id: int) -> CandidateTracks:
     candidate = get_candidate(session, candidate_id)
     measurement, target = _measurement(session, candidate)
     rows = _linked_rows(session, candidate_id)
-    context = candidate_service.physics_context()
+    context = default_physics_context()
     by_site: dict[str, list[tuple]] = {}
     for row in rows:
         by_site.setdefault(row[3].code, []).append(row)

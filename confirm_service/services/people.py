@@ -14,11 +14,11 @@ from datetime import timedelta
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, Invalid, NotFound
 from confirm_service.models import PERSON_ROLES, ApiToken, Person
 from confirm_service.services import passwords, tokens
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Conflict, Invalid, NotFound
 from confirm_service.timeutil import utc_now
 
 MAX_FAILED_SIGN_INS = 5

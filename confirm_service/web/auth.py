@@ -21,10 +21,10 @@ from typing import Any, TypeVar
 from flask import Flask, abort, current_app, g, request, session
 from flask.sessions import SecureCookieSessionInterface
 
+from confirm_service.actor import Actor
 from confirm_service.config import ConfigError, Settings
 from confirm_service.db import Database
 from confirm_service.services import access, people, tokens
-from confirm_service.services.actor import Actor
 
 F = TypeVar("F", bound=Callable[..., Any])
 

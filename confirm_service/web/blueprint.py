@@ -23,10 +23,10 @@ from flask import (
 from flask.blueprints import BlueprintSetupState
 from werkzeug.exceptions import HTTPException
 
+from confirm_service.actor import Actor
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.db import Database
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
+from confirm_service.errors import ServiceError
 from confirm_service.timeutil import mjd_utc
 from confirm_service.web import auth
 

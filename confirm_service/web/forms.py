@@ -11,8 +11,8 @@ from flask import flash, redirect, request
 from pydantic import BaseModel, ValidationError
 from sqlalchemy.orm import Session
 
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
+from confirm_service.actor import Actor
+from confirm_service.errors import ServiceError
 from confirm_service.web import auth
 from confirm_service.web.blueprint import database
 

@@ -9,10 +9,10 @@ from typing import Any
 from flask import Response, current_app, render_template, url_for
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.schemas.candidates import CommentIn, DecisionIn, HoldReleaseIn, SignOffIn
 from confirm_service.services import attention, candidate_views, observing_views
-from confirm_service.services import candidates as candidate_service
-from confirm_service.services.actor import Actor
+from confirm_service.services import decisions as decision_service
 from confirm_service.timeutil import utc_now
 from confirm_service.web import auth, plots
 from confirm_service.web.blueprint import bp, database, settings
@@ -156,7 +156,7 @@ def signoff(candidate_id: int) -> Any:
     validated = validate("signoff", FORM_FIELDS["signoff"], SignOffIn, data, values, refused)
 
     def act(session: Session, actor: Actor, body: SignOffIn) -> str:
-        row = candidate_service.add_signoff(
+        row = decision_service.add_signoff(
             session, actor, candidate_id, body.approve, body.rationale
         )
         verdict = "approval" if row.approve else "objection"
@@ -173,7 +173,7 @@ def decision(candidate_id: int) -> Any:
     validated = validate("decision", FORM_FIELDS["decision"], DecisionIn, values, values, {})
 
     def act(session: Session, actor: Actor, body: DecisionIn) -> str:
-        candidate_service.decide(session, actor, candidate_id, body.decision, body.rationale)
+        decision_service.decide(session, actor, candidate_id, body.decision, body.rationale)
         return f"The candidate is now {body.decision}."
 
     return _submit(candidate_id, "decision", validated, act)
@@ -187,7 +187,7 @@ def release_hold(candidate_id: int) -> Any:
     validated = validate("hold", FORM_FIELDS["hold"], HoldReleaseIn, values, values, {})
 
     def act(session: Session, actor: Actor, body: HoldReleaseIn) -> str:
-        candidate_service.release_hold(session, actor, candidate_id, body.rationale)
+        decision_service.release_hold(session, actor, candidate_id, body.rationale)
         return "The hold was released and the candidate re-evaluated."
 
     return _submit(candidate_id, "hold", validated, act)
@@ -200,7 +200,7 @@ def comment(candidate_id: int) -> Any:
     validated = validate("comment", FORM_FIELDS["comment"], CommentIn, values, values, {})
 
     def act(session: Session, actor: Actor, body: CommentIn) -> str:
-        candidate_service.add_comment(session, actor, candidate_id, body.text)
+        decision_service.add_comment(session, actor, candidate_id, body.text)
         return "Your comment was added."
 
     return _submit(candidate_id, "comment", validated, act)
