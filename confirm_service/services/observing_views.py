@@ -6,8 +6,12 @@ Read only. Times are POSIX seconds (UTC), frequencies Hz, drift rates Hz/s, angl
 
 from __future__ import annotations
 
+import threading
+from collections import OrderedDict
+from collections.abc import Callable, Hashable
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
+from typing import Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -112,9 +116,53 @@ def _linked_rows(session: Session, candidate_id: int) -> list[tuple]:
     )
 
 
+class _RecentResults:
+    """A small thread-safe cache of recent results by key (oldest dropped first)."""
+
+    def __init__(self, size: int) -> None:
+        self.size = size
+        self.items: OrderedDict[Hashable, Any] = OrderedDict()
+        self.lock = threading.Lock()
+
+    def get(self, key: Hashable, compute: Callable[[], Any]) -> Any:
+        with self.lock:
+            if key in self.items:
+                self.items.move_to_end(key)
+                return self.items[key]
+        value = compute()
+        with self.lock:
+            self.items[key] = value
+            while len(self.items) > self.size:
+                self.items.popitem(last=False)
+        return value
+
+
+_tracks_cache = _RecentResults(64)
+_elevation_cache = _RecentResults(32)
+
+
+def _database_key(session: Session) -> str:
+    return str(session.get_bind().url)
+
+
 def candidate_tracks(session: Session, candidate_id: int) -> CandidateTracks:
-    """Every linked hit against the prediction for its site and time, and each site's track."""
+    """Every linked hit against the prediction for its site and time, and each site's track.
+
+    Kept for reuse until the candidate changes (its ``updated_at`` and evaluation count).
+    """
     candidate = get_candidate(session, candidate_id)
+    key = (
+        _database_key(session),
+        candidate_id,
+        candidate.updated_at,
+        candidate.evaluation_count,
+        len(_linked_rows(session, candidate_id)),
+    )
+    return _tracks_cache.get(key, lambda: _candidate_tracks(session, candidate))
+
+
+def _candidate_tracks(session: Session, candidate: Candidate) -> CandidateTracks:
+    candidate_id = candidate.id
     measurement, target = _measurement(session, candidate)
     rows = _linked_rows(session, candidate_id)
     context = default_physics_context()
@@ -183,8 +231,23 @@ class ElevationTrack:
 def elevation_tracks(
     session: Session, target_name: str, start: datetime, hours: float = 48.0
 ) -> list[ElevationTrack]:
-    """The target's elevation every 10 minutes at each registered site, with its windows."""
+    """The target's elevation every 10 minutes at each registered site, with its windows.
+
+    ``start`` is taken back to the previous whole 10 minutes, and results are reused until
+    then, or until a site or the target changes.
+    """
     target = target_by_name(session, target_name)
+    start = datetime.fromtimestamp(
+        start.timestamp() // ELEVATION_STEP_S * ELEVATION_STEP_S, start.tzinfo
+    )
+    sites = tuple((s.id, s.updated_at) for s in all_sites(session))
+    key = (_database_key(session), target.id, target.updated_at, start, hours, sites)
+    return _elevation_cache.get(key, lambda: _elevation_tracks(session, target, start, hours))
+
+
+def _elevation_tracks(
+    session: Session, target: Target, start: datetime, hours: float
+) -> list[ElevationTrack]:
     coord = physics.target_coord(target.ra_deg, target.dec_deg)
     end = start + timedelta(hours=hours)
     unix_s = np.arange(start.timestamp(), end.timestamp() + 1.0, ELEVATION_STEP_S)

@@ -111,7 +111,7 @@ def _with_headers(response: Response) -> Response:
     for name, value in SECURITY_HEADERS.items():
         response.headers.setdefault(name, value)
     if request.endpoint != "dashboard.static":
-        response.headers["Cache-Control"] = "no-store"
+        response.headers.setdefault("Cache-Control", "no-store")
     return response
 
 

@@ -132,6 +132,7 @@ def candidate_plot(candidate_id: int, name: str) -> Response:
             svg = draw(data)
     response = Response(svg, mimetype="image/svg+xml")
     response.headers["Content-Security-Policy"] = SVG_POLICY
+    response.headers["Cache-Control"] = "private, max-age=300"
     return response
 
 
