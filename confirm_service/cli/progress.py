@@ -31,14 +31,20 @@ def working(message: str) -> Iterator[Callable[[str], None]]:
 
 
 @contextmanager
-def counted(label: str, total: int) -> Iterator[Callable[[int], None]]:
-    """A progress bar of ``total`` steps; yields ``advance(steps)``."""
+def counted(label: str, total: int) -> Iterator[Callable[..., None]]:
+    """A progress bar; yields ``advance(steps, total=None)`` (``total`` when learnt late)."""
     if not sys.stderr.isatty():
-        yield lambda _steps: None
+        yield lambda _steps, _total=None: None
         return
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeElapsedColumn
 
     columns = ("[progress.description]{task.description}", BarColumn(), MofNCompleteColumn())
     with Progress(*columns, TimeElapsedColumn(), console=_console(), transient=True) as bar:
-        task = bar.add_task(label, total=max(total, 1))
-        yield lambda steps: bar.advance(task, steps)
+        task = bar.add_task(label, total=total or None)
+
+        def advance(steps: int, new_total: int | None = None) -> None:
+            if new_total is not None:
+                bar.update(task, total=new_total)
+            bar.advance(task, steps)
+
+        yield advance

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 import click
 
 from confirm_service.cli import main
@@ -13,7 +15,7 @@ ROLE_CHOICES = ("coordinator", "viewer", "admin")
 
 def _password(from_stdin: bool) -> str:
     if from_stdin:
-        return click.get_text_stream("stdin").readline().rstrip("\r\n")
+        return sys.stdin.readline().rstrip("\r\n")
     return click.prompt("Password", hide_input=True, confirmation_prompt=True, err=True)
 
 

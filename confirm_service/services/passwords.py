@@ -22,10 +22,10 @@ def _b64(raw: bytes) -> str:
     return base64.b64encode(raw).decode("ascii")
 
 
-def _derive(password: str, salt: bytes, n: int, r: int, p: int) -> bytes:
+def _derive(password: str, salt: bytes, n: int, r: int, p: int, length: int = KEY_BYTES) -> bytes:
     memory = 128 * n * r * p + 2**20  # scrypt needs 128·N·r bytes (RFC 7914 section 6)
     return hashlib.scrypt(
-        password.encode("utf-8"), salt=salt, n=n, r=r, p=p, maxmem=memory, dklen=KEY_BYTES
+        password.encode("utf-8"), salt=salt, n=n, r=r, p=p, maxmem=memory, dklen=length
     )
 
 
@@ -42,10 +42,11 @@ def verify_password(password: str, stored: str) -> bool:
         scheme, n, r, p, salt, key = stored.split("$")
         if scheme != "scrypt":
             return False
-        derived = _derive(password, base64.b64decode(salt), int(n), int(r), int(p))
+        expected = base64.b64decode(key)
+        derived = _derive(password, base64.b64decode(salt), int(n), int(r), int(p), len(expected))
     except (ValueError, TypeError):
         return False
-    return hmac.compare_digest(derived, base64.b64decode(key))
+    return hmac.compare_digest(derived, expected)
 
 
 @cache
