@@ -12,9 +12,16 @@ from confirm_service.models.candidates import (
     SignOff,
     StageTransition,
 )
-from confirm_service.models.followups import FollowUpReport, FollowUpRequest
+from confirm_service.models.followups import (
+    FollowUpReport,
+    FollowUpRequest,
+    OutboundMessage,
+    PartnerSecret,
+    ReceivedMessage,
+)
 from confirm_service.models.log import Detection, Observation, Site, Target
 from confirm_service.models.people import PERSON_ROLES, Person
+from confirm_service.models.scheduler import SchedulerJob, SchedulerRun
 
 __all__ = [
     "PERSON_ROLES",
@@ -34,7 +41,12 @@ __all__ = [
     "IdempotencyRecord",
     "Observation",
     "Person",
+    "OutboundMessage",
+    "PartnerSecret",
     "ProtocolRecord",
+    "ReceivedMessage",
+    "SchedulerJob",
+    "SchedulerRun",
     "SignOff",
     "Site",
     "StageTransition",

@@ -1,7 +1,7 @@
 """people who sign in with a password
 
-Revision ID: 0002
-Revises: 0001
+Revision ID: 0003
+Revises: 0002
 Create Date: 2026-12-02 09:32:01.771088
 """
 
@@ -12,8 +12,8 @@ from alembic import op
 
 import confirm_service.models.base
 
-revision = "0002"
-down_revision = "0001"
+revision = "0003"
+down_revision = "0002"
 branch_labels = None
 depends_on = None
 
