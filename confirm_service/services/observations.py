@@ -327,3 +327,39 @@ def list_detections(
         .limit(limit)
     )
     return list(session.execute(query).scalars())
+
+
+def recent_screening_counts(session: Session, limit: int = 100) -> list[dict[str, Any]]:
+    """The latest scans with their hits per screening reason (two queries, newest first)."""
+    scans = session.execute(
+        select(Observation).order_by(Observation.start.desc(), Observation.id.desc()).limit(limit)
+    ).scalars()
+    rows = {
+        o.id: {
+            "observation_id": o.id,
+            "site": o.site.code,
+            "target": o.target.name if o.target else None,
+            "start": o.start,
+            "on_source": o.on_source,
+            "complete": o.completed_at is not None,
+            "hits_in": o.detection_count,
+            "pending": 0,
+            "reasons": {},
+        }
+        for o in scans
+    }
+    if not rows:
+        return []
+    counted = session.execute(
+        select(Detection.observation_id, Detection.screen_reason, func.count())
+        .where(Detection.observation_id.in_(list(rows)))
+        .group_by(Detection.observation_id, Detection.screen_reason)
+    ).all()
+    for observation_id, reason, count in counted:
+        if reason is None:
+            rows[observation_id]["pending"] = int(count)
+        else:
+            rows[observation_id]["reasons"][reason] = int(count)
+    for row in rows.values():
+        row["reasons"] = dict(sorted(row["reasons"].items()))
+    return list(rows.values())
