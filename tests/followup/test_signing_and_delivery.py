@@ -55,17 +55,29 @@ def test_receiver_refuses_bad_signature_and_stale_timestamps():
 
 
 def test_one_try_against_real_servers():
-    with Recorder(200, {"request_id": 9}) as ok, Recorder(500) as failing:
-        with Recorder(hang=True) as silent, Recorder(422) as refusing, Recorder(409) as seen:
-            delivered = delivery.post_json(ok.url, b"{}", {"Content-Type": "application/json"}, 5)
-            assert delivered.delivered and delivered.response == {"request_id": 9}
-            error = delivery.post_json(failing.url, b"{}", {}, 5)
-            assert (error.delivered, error.status_code, error.retry) == (False, 500, True)
-            timeout = delivery.post_json(silent.url, b"{}", {}, 0.5)
-            assert not timeout.delivered and timeout.retry and "no answer" in timeout.error
-            permanent = delivery.post_json(refusing.url, b"{}", {}, 5)
-            assert not permanent.delivered and not permanent.retry
-            assert delivery.post_json(seen.url, b"{}", {}, 5).delivered  # already received
+    servers = (
+        Recorder(200, {"request_id": 9}),
+        Recorder(500),
+        Recorder(hang=True),
+        Recorder(422),
+        Recorder(409),
+    )
+    ok, failing, silent, refusing, seen = servers
+    for server in servers:
+        server.__enter__()
+    try:
+        delivered = delivery.post_json(ok.url, b"{}", {"Content-Type": "application/json"}, 5)
+        assert delivered.delivered and delivered.response == {"request_id": 9}
+        error = delivery.post_json(failing.url, b"{}", {}, 5)
+        assert (error.delivered, error.status_code, error.retry) == (False, 500, True)
+        timeout = delivery.post_json(silent.url, b"{}", {}, 0.5)
+        assert not timeout.delivered and timeout.retry and "no answer" in timeout.error
+        permanent = delivery.post_json(refusing.url, b"{}", {}, 5)
+        assert not permanent.delivered and not permanent.retry
+        assert delivery.post_json(seen.url, b"{}", {}, 5).delivered  # already received
+    finally:
+        for server in servers:
+            server.__exit__(None, None, None)
     closed = delivery.post_json(ok.url, b"{}", {}, 1)
     assert not closed.delivered and closed.retry and "connection" in closed.error
 
