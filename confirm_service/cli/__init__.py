@@ -38,6 +38,7 @@ def _register() -> None:
         demo,
         dossier,
         exchange,
+        partners,
         physics,
         protocol,
         scheduler,
