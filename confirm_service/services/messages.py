@@ -81,7 +81,8 @@ def _body_bytes(message: OutboundMessage) -> bytes:
 
 
 def _attempt(message: OutboundMessage, secret: str | None, settings: Settings) -> delivery.Attempt:
-    """One try, by channel; partners' messages are signed with their secret."""
+    """One try, by channel. Messages to partner sites are signed with their shared secret and
+    never sent without one; notices to contacts' webhooks are not signed."""
     if message.channel == "email":
         if not settings.smtp_host:
             return delivery.Attempt(False, None, "no SMTP host configured", True)
@@ -97,6 +98,10 @@ def _attempt(message: OutboundMessage, secret: str | None, settings: Settings) -
         )
     body = _body_bytes(message)
     headers = {"Content-Type": "application/json", signing.MESSAGE_ID_HEADER: message.message_id}
+    if message.site_id is not None and secret is None:
+        return delivery.Attempt(
+            False, None, "no shared secret for this partner (confirm-service partner secret)", False
+        )
     if secret is not None:
         sender = settings.site_code or "confirm-service"
         headers = signing.signed_headers(secret, sender, message.message_id, body)
