@@ -1,7 +1,7 @@
 """messages name the stage change they announce
 
-Revision ID: 0003
-Revises: 0002
+Revision ID: 0004
+Revises: 0003
 Create Date: 2026-12-02 09:57:17.382646
 """
 
@@ -10,8 +10,8 @@ from __future__ import annotations
 import sqlalchemy as sa
 from alembic import op
 
-revision = "0003"
-down_revision = "0002"
+revision = '0004'
+down_revision = '0003'
 branch_labels = None
 depends_on = None
 
