@@ -472,6 +472,7 @@ def on_delivery_result(
     if message.kind != REQUEST_MESSAGE or message.request_id is None:
         return
     request = get_request(session, message.request_id, lock=True)
+    request.attempts, request.last_error = message.attempts, message.last_error
     if message.status == messages.DELIVERED and request.status == S.DRAFTED.value:
         move(session, actor, request, S.SENT, f"delivered to {message.destination}")
         answer = attempt.response or {}
