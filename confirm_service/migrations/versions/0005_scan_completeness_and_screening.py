@@ -1,7 +1,7 @@
 """scan completeness and screening
 
-Revision ID: 0004
-Revises: 0003
+Revision ID: 0005
+Revises: 0004
 Create Date: 2026-12-02 09:44:05.500400
 """
 
@@ -12,8 +12,8 @@ from alembic import op
 
 import confirm_service.models.base
 
-revision = "0004"
-down_revision = "0003"
+revision = "0005"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 
