@@ -163,6 +163,10 @@ def test_search_by_id_site_and_frequency(app, client, auth, tokens):
     near = viewer.get(f"/dashboard?frequency_hz={f + 40}&tolerance_hz=50")
     assert listed_ids(near) == [review["id"]]
     assert listed_ids(viewer.get(f"/dashboard?frequency_hz={f + 60}&tolerance_hz=50")) == []
+    for query in ("q=tfo", f"frequency_hz={f + 40}&tolerance_hz=50", "q=kestrel&state=rejected"):
+        api = client.get(f"/api/v1/candidates?{query}", headers=auth("viewer")).get_json()
+        page = viewer.get(f"/dashboard?{query}")
+        assert sorted(c["id"] for c in api["items"]) == sorted(listed_ids(page)), query
     refused = viewer.get("/dashboard?frequency_hz=minus-three")
     assert refused.status_code == 400 and refused.mimetype == "text/html"
     assert "frequency_hz" in page_text(refused)
