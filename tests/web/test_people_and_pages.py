@@ -163,6 +163,10 @@ def test_search_by_id_site_and_frequency(app, client, auth, tokens):
     near = viewer.get(f"/dashboard?frequency_hz={f + 40}&tolerance_hz=50")
     assert listed_ids(near) == [review["id"]]
     assert listed_ids(viewer.get(f"/dashboard?frequency_hz={f + 60}&tolerance_hz=50")) == []
+    for query in ("q=tfo", f"frequency_hz={f + 40}&tolerance_hz=50", "q=kestrel&state=rejected"):
+        api = client.get(f"/api/v1/candidates?{query}", headers=auth("viewer")).get_json()
+        page = viewer.get(f"/dashboard?{query}")
+        assert sorted(c["id"] for c in api["items"]) == sorted(listed_ids(page)), query
     refused = viewer.get("/dashboard?frequency_hz=minus-three")
     assert refused.status_code == 400 and refused.mimetype == "text/html"
     assert "frequency_hz" in page_text(refused)
@@ -284,11 +288,15 @@ def test_undelivered_followups_need_a_person(app, client, auth, db, tokens):
     assert "✗ dead letter" in text and "https://partner.example/hook" in text
     available = resend_operations()
     assert (f"Re-send request {failed_id}" in text) == ("request" in available)
-    if "request" not in available:  # the delivery service is not installed: a page, not JSON
-        refused = coordinator.post(
-            f"/dashboard/follow-ups/requests/{failed_id}/resend",
-            data={"csrf_token": csrf_of(page)},
-        )
-        assert refused.status_code == 404 and refused.mimetype == "text/html"
+    answer = coordinator.post(
+        f"/dashboard/follow-ups/requests/{failed_id}/resend", data={"csrf_token": csrf_of(page)}
+    )
+    if "request" in available:  # drafted again, due now; the dead letter stays on record
+        assert answer.status_code == 302
+        with db.read() as session:
+            assert session.get(FollowUpRequest, failed_id).status == "drafted"
+        assert "will be sent again" in page_text(coordinator.get("/dashboard/follow-ups"))
+    else:  # the delivery service is not installed: a page, not JSON
+        assert answer.status_code == 404 and answer.mimetype == "text/html"
     viewer = signed_in(app, tokens["viewer"])
     assert "Re-send" not in page_text(viewer.get("/dashboard/follow-ups"))
