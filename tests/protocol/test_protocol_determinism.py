@@ -116,7 +116,9 @@ def test_batched_and_streamed_evaluation_equal_one_at_a_time(
 ):
     import gc
 
-    from confirm_service.protocol import evaluate_many, iter_evaluations
+    from confirm_service.protocol import evaluate_many
+
+    from .batching import gc_paused, iter_evaluations
 
     facts = [s.facts for s in injection_scenarios.values()] * 3
     one_by_one = [evaluate(default_protocol, f, physics_context=physics_context) for f in facts]
@@ -131,5 +133,6 @@ def test_batched_and_streamed_evaluation_equal_one_at_a_time(
     )
     assert streamed == one_by_one
     assert gc.isenabled()
-    paused = evaluate_many(default_protocol, facts, physics_context=physics_context, pause_gc=True)
+    with gc_paused():
+        paused = evaluate_many(default_protocol, facts, physics_context=physics_context)
     assert paused == one_by_one and gc.isenabled()
