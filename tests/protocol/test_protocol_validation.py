@@ -169,6 +169,24 @@ def test_signoff_list_form_reports_its_index(workdir, protocol_dir):
     assert problems(workdir, text) == ["stages[3].signoffs[1].count: must be >= 1"]
 
 
+def test_signoff_roles_must_exist_and_be_able_to_sign(workdir, default_text, protocol_dir):
+    """A sign-off rule names a role whose holders can sign off (confirm_service.roles); a role
+    nobody holds would leave every candidate waiting in review forever."""
+    invented = edited(default_text, 'role = "coordinator"', 'role = "site_scientist"')
+    assert problems(workdir, invented) == [
+        "stages[3].signoffs.role: no such sign-off role 'site_scientist'; roles that can sign "
+        "off: coordinator, site"
+    ]
+    read_only = edited(default_text, 'role = "coordinator"', 'role = "viewer"')
+    assert problems(workdir, read_only)[0].startswith("stages[3].signoffs.role: no such")
+    strict = (protocol_dir / "strict.toml").read_text(encoding="utf-8")
+    strict = edited(strict, 'role = "site" ', 'role = "site_scientist" ')
+    assert problems(workdir, strict) == [
+        "stages[3].signoffs[1].role: no such sign-off role 'site_scientist'; roles that can "
+        "sign off: coordinator, site"
+    ]
+
+
 def test_bad_toml_syntax_names_the_key(workdir, default_text):
     text = edited(
         default_text,
