@@ -428,8 +428,13 @@ def intake_decision(
     target: TargetFact | None,
     bands: BandSet | Sequence[InterferenceBand] | None = None,
 ) -> IntakeDecision:
-    """Whether a pipeline detection becomes a candidate under the protocol's [intake] rule."""
-    rule = _model(protocol).intake
+    """Whether a pipeline detection becomes a candidate under the protocol's [intake] rule.
+
+    Hits in listed bands are refused only when the protocol's band action is ``"reject"``;
+    with ``"flag"`` they are promoted and the known_interference check holds them for review.
+    """
+    model = _model(protocol)
+    rule = model.intake
     if target is None:
         return IntakeDecision(
             False, "The scan has no target, so the signal cannot be followed up.", "no_target"
@@ -448,14 +453,16 @@ def intake_decision(
             f"SNR {detection.snr:.1f} is below the intake minimum {rule.min_snr:g}.",
             "low_snr",
         )
-    if abs(detection.drift_hz_s) > rule.max_abs_drift_hz_s:
+    max_drift_hz_s = rule.max_abs_drift_at_hz_s(detection.frequency_hz)
+    if abs(detection.drift_hz_s) > max_drift_hz_s:
         return IntakeDecision(
             False,
             f"|drift| {abs(detection.drift_hz_s):.4f} Hz/s exceeds the intake maximum "
-            f"{rule.max_abs_drift_hz_s:g} Hz/s.",
+            f"{max_drift_hz_s:.4g} Hz/s.",
             "drift_out_of_range",
         )
-    if rule.exclude_interference_bands:
+    excludes = rule.exclude_interference_bands and model.interference_band_action == "reject"
+    if excludes:
         hit = _band_hit(detection, observation, _bands(protocol, bands))
         if hit is not None:
             return IntakeDecision(
@@ -465,8 +472,8 @@ def intake_decision(
             )
     return IntakeDecision(
         True,
-        f"SNR {detection.snr:.1f} >= {rule.min_snr:g}, |drift| <= {rule.max_abs_drift_hz_s:g} Hz/s"
-        + (", outside listed bands." if rule.exclude_interference_bands else "."),
+        f"SNR {detection.snr:.1f} >= {rule.min_snr:g}, |drift| <= {max_drift_hz_s:.4g} Hz/s"
+        + (", outside listed bands." if excludes else "."),
     )
 
 
