@@ -15,7 +15,7 @@ def test_demo_runs_the_whole_service(tmp_path):
     assert (folder / "confirm-service.db").is_file()
     assert out.count("REJECTED at stage 'screening'") == 3
     assert "CONFIRMED at stage 'review'" in out
-    for reason in ("nonzero_drift failed", "known_interference failed"):
+    for reason in ("nonzero_drift failed", "on_off_cadence failed"):
         assert reason in out
     assert "signed checkpoints, intact" in out
     assert "verified offline" in out

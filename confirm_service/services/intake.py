@@ -201,7 +201,8 @@ def _prefilter(protocol: LoadedProtocol, rows: Sequence[DetectionIn]) -> list[in
     rule = protocol.model.intake
     keep = []
     for index, row in enumerate(rows):
-        passes = row["snr"] >= rule.min_snr and abs(row["drift_hz_s"]) <= rule.max_abs_drift_hz_s
+        limit_hz_s = rule.max_abs_drift_at_hz_s(row["frequency_hz"])
+        passes = row["snr"] >= rule.min_snr and abs(row["drift_hz_s"]) <= limit_hz_s
         if passes or row.get("candidate", False):
             keep.append(index)
     return keep
