@@ -88,7 +88,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     common = {
         "measured": fraction,
         "expected": params.min_on_fraction,
-        "unit": "fraction of on-source scans with the signal",
+        "unit": "fraction of on-source scans",
         "details": details,
     }
     if fraction < params.min_on_fraction:
@@ -130,7 +130,7 @@ def _off_source_result(
         "measured": float(seen),
         "expected": 0.0,
         "tolerance": 0.0,
-        "unit": "off-source scans with the signal",
+        "unit": "off-source scans",
         "details": details,
     }
     if on_track or len(nearby) >= 2:
