@@ -45,6 +45,7 @@ from confirm_service.protocol.facts import (
     SiteFact,
     TargetFact,
 )
+from confirm_service.protocol.loader import model_of
 from confirm_service.protocol.reference import (
     PhysicsContext,
     ReferenceSignal,
@@ -239,7 +240,7 @@ def tolerance_hz(
 
 
 def _protocol_model(protocol: Any) -> ProtocolModel:
-    return protocol if isinstance(protocol, ProtocolModel) else protocol.model
+    return model_of(protocol)
 
 
 @dataclass(frozen=True, slots=True)
