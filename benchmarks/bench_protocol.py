@@ -5,8 +5,8 @@
 Builds synthetic candidates (invented sites and targets; 20 detections over 11 scans and one
 partner report each: a six-scan cadence, two re-observations, two scans at a distant site and a
 simultaneous side beam, with decoys beside the true track) and prints candidates/s for
-``evaluate_many`` (batched physics; results kept), ``iter_evaluations`` (results streamed, as
-a service stores them) and ``evaluate`` one at a time, with a warm physics TrackCache, and the
+``evaluate_many`` (batched physics; results kept), streamed chunks (tests/protocol/batching.py,
+as a service stores them) and ``evaluate`` one at a time, with a warm physics TrackCache, and the
 one-off cost of building the cache. Goal: >= 1000 candidates/s warm.
 Times depend on the machine and its load (printed). The generator places true detections with
 the protocol's own predictor: this measures speed, not correctness (see tests/protocol).
@@ -38,10 +38,10 @@ from confirm_service.protocol import (  # noqa: E402
     TargetFact,
     evaluate,
     evaluate_many,
-    iter_evaluations,
     load_protocol,
 )
 from confirm_service.protocol.reference import predict_references  # noqa: E402
+from tests.protocol.batching import gc_paused, iter_evaluations  # noqa: E402
 
 GOAL_PER_S = 1000.0
 EPOCH = datetime(2025, 6, 2, tzinfo=UTC).timestamp()
@@ -289,11 +289,13 @@ def main() -> None:
     print(
         f"evaluate_many, warm, best of {args.repeat}: {rates(args.candidates, warm_wall, warm_cpu)}"
     )
-    paused = best_of(
-        args.repeat,
-        lambda: evaluate_many(protocol, facts, physics_context=context, pause_gc=True),
-    )
-    print(f"evaluate_many(pause_gc=True), warm: {rates(args.candidates, paused[0], paused[1])}")
+
+    def paused_run() -> list:
+        with gc_paused():
+            return evaluate_many(protocol, facts, physics_context=context)
+
+    paused = best_of(args.repeat, paused_run)
+    print(f"evaluate_many, collector paused, warm: {rates(args.candidates, paused[0], paused[1])}")
 
     def stream() -> Counter:
         return Counter(e.state for e in iter_evaluations(protocol, facts, physics_context=context))

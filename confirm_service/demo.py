@@ -221,11 +221,14 @@ def scenario_scans() -> list[tuple[str, dict[str, Any]]]:
         on = index % 2 == 0
         hits = noise_hits(rng, 40)
         hits.append({**INTERFERENCE["present_off_source"], "time_offset_s": 12.0})
+        # A satellite-navigation carrier enters at every pointing and drifts steadily; the
+        # pipeline flags it itself the first time.
+        flag = {"candidate": True} if index == 0 else {}
+        navigation = INTERFERENCE["navigation_band"]
+        drifted_hz = navigation["frequency_hz"] + navigation["drift_hz_s"] * index * (SCAN_S + 30)
+        hits.append({**navigation, "frequency_hz": drifted_hz, "time_offset_s": 45.0, **flag})
         if on:
             hits.append({**INTERFERENCE["zero_drift"], "time_offset_s": 30.0})
-            # The pipeline flags this one itself the first time (intake alone would skip it).
-            flag = {"candidate": True} if index == 0 else {}
-            hits.append({**INTERFERENCE["navigation_band"], "time_offset_s": 45.0, **flag})
             hit = signal.seen_at(north, start + timedelta(seconds=60), 24.0 - index)
             hits.append({**hit, "time_offset_s": 60.0})
         label = f"cadence scan {index + 1} ({'on' if on else 'off'}-source)"

@@ -9,9 +9,10 @@ from sqlalchemy import JSON, Integer, String, UniqueConstraint
 from sqlalchemy.orm import Mapped, mapped_column
 
 from confirm_service.models.base import Base
+from confirm_service.roles import ROLES
 from confirm_service.timeutil import utc_now
 
-ROLES = ("pipeline", "site", "coordinator", "viewer", "admin")
+__all__ = ["ROLES", "ApiToken", "IdempotencyRecord"]
 
 
 class ApiToken(Base):

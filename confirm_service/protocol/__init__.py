@@ -34,8 +34,6 @@ from confirm_service.protocol.machine import (
     evaluate_many,
     initial_stage,
     intake_decision,
-    iter_evaluations,
-    signoff_statuses,
     stage_entry_actions,
 )
 from confirm_service.protocol.matching import (
@@ -63,6 +61,7 @@ from confirm_service.protocol.results import (
     Transition,
 )
 from confirm_service.protocol.schema import ProtocolModel
+from confirm_service.protocol.signoffs import signoff_statuses, signoffs_met
 
 __all__ = [
     "CANDIDATE_STATES",
@@ -96,7 +95,6 @@ __all__ = [
     "evaluate",
     "evaluate_many",
     "initial_stage",
-    "iter_evaluations",
     "intake_decision",
     "load_interference_bands",
     "load_protocol",
@@ -106,6 +104,7 @@ __all__ = [
     "search_window_hz",
     "search_windows_hz",
     "signoff_statuses",
+    "signoffs_met",
     "stage_entry_actions",
     "validate_interference_band_file",
     "validate_protocol_file",

@@ -29,6 +29,7 @@ from confirm_service.protocol.problems import (
 )
 from confirm_service.protocol.results import REASON_CLASS_EXPIRED
 from confirm_service.protocol.schema import ProtocolModel
+from confirm_service.roles import SIGNOFF_ROLES
 
 BAND_KEY = "interference_bands"
 
@@ -261,13 +262,30 @@ def _check_list_problems(path: str, checks: list[Any], has_bands: bool) -> list[
 
 
 def _signoff_role_problems(path: str, signoffs: Any) -> list[ProtocolProblem]:
-    if isinstance(signoffs, dict) or not isinstance(signoffs, list):
+    """Each rule names a role that exists and may sign off, at most once per stage."""
+    if isinstance(signoffs, dict):
+        return _signoff_role_problems_in(path, [signoffs], single=True)
+    if not isinstance(signoffs, list):
         return []
+    return _signoff_role_problems_in(path, signoffs, single=False)
+
+
+def _signoff_role_problems_in(
+    path: str, signoffs: list[Any], single: bool
+) -> list[ProtocolProblem]:
     problems = []
     seen: set[str] = set()
     for index, rule in enumerate(signoffs):
         role = rule.get("role") if isinstance(rule, dict) else None
         if isinstance(role, str):
+            if role not in SIGNOFF_ROLES:
+                problems.append(
+                    ProtocolProblem(
+                        f"{path}.signoffs.role" if single else f"{path}.signoffs[{index}].role",
+                        f"no such sign-off role {role!r}; roles that can sign off: "
+                        + ", ".join(SIGNOFF_ROLES),
+                    )
+                )
             if role in seen:
                 problems.append(
                     ProtocolProblem(f"{path}.signoffs[{index}].role", f"role {role!r} listed twice")

@@ -8,14 +8,16 @@ Semantics (deterministic: "now" is ``facts.now_unix_s``; no clocks, no randomnes
 * A failing check with ``on_fail = "reject"`` (the first, in stage and check order) rejects the
   candidate with the check's ``reason_class``.
 * A failing check with ``on_fail = "hold"`` holds the candidate for a person: it stays in its
-  stage with ``held = True`` and the check's reason. A person who reviewed it sets
-  ``manual_hold_released``; released holds neither hold nor block advancement. A person with a
-  required role whose latest sign-off for the stage is a refusal also holds the candidate.
-* The candidate leaves its stage when every check of the stage passed (or is not applicable),
-  it is not held, and each sign-off rule has ``count`` distinct persons of the role whose latest
-  sign-off for the stage (given after the stage was entered) approves. It then enters the next
-  stage at ``now`` (its ``on_entry`` actions are emitted) and the loop continues there; leaving
-  the last stage makes it ``confirmed``.
+  stage with ``held = True`` and the check's reason. An ``inconclusive`` check (its data exist
+  but cannot decide: ambiguous links, partial coverage, a flagged interference band) holds the
+  candidate whatever its ``on_fail``: an automatic decision never rests on such data. A person
+  who reviewed it sets ``manual_hold_released``; released holds neither hold nor block
+  advancement. A person with a required role whose latest sign-off for the stage is a refusal
+  also holds the candidate.
+* The candidate leaves its stage when every check of the stage passed (or is not applicable,
+  or is a released hold), it is not held, and each sign-off rule of ``protocol.signoffs`` is
+  met. It then enters the next stage at ``now`` (its ``on_entry`` actions are emitted) and the
+  loop continues there; leaving the last stage makes it ``confirmed``.
 * When a stage cannot be left and ``now >= entered + deadline_hours``: ``escalate`` emits an
   escalate action to the stage's contacts (its idempotency key is fixed per stage entry, so it
   is recorded once), ``expire`` rejects with reason class ``expired``. Deadlines apply to held
@@ -30,9 +32,7 @@ and the internationally agreed post-detection principles.
 
 from __future__ import annotations
 
-import gc
-from collections.abc import Iterable, Iterator, Sequence
-from contextlib import contextmanager
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -46,7 +46,6 @@ from confirm_service.protocol.facts import (
     CandidateFacts,
     DetectionFact,
     ObservationFact,
-    SignoffFact,
     TargetFact,
 )
 from confirm_service.protocol.loader import model_of
@@ -55,6 +54,7 @@ from confirm_service.protocol.reference import PhysicsContext, ReferenceSignal
 from confirm_service.protocol.results import (
     ACTION_ESCALATE,
     FAIL,
+    INCONCLUSIVE,
     NOT_APPLICABLE,
     PASS,
     REASON_CLASS_EXPIRED,
@@ -66,6 +66,7 @@ from confirm_service.protocol.results import (
     Transition,
 )
 from confirm_service.protocol.schema import ProtocolModel, StageModel
+from confirm_service.protocol.signoffs import signoff_statuses, signoffs_met
 
 EVALUATION_CHUNK = 64
 
@@ -133,69 +134,18 @@ def evaluate_many(
     *,
     physics_context: PhysicsContext | None = None,
     chunk_size: int = EVALUATION_CHUNK,
-    pause_gc: bool = False,
 ) -> list[Evaluation]:
     """``evaluate`` for many candidates; their physics is computed ``chunk_size`` at a time.
 
     Gives exactly the same evaluations as calling ``evaluate`` on each candidate.
-    ``pause_gc`` suspends Python's cyclic garbage collector during the call (the results form
-    no reference cycles); it saves about a third of the time for large batches, but the
-    collector is process-wide, so use it only where nothing else relies on it meanwhile
-    (e.g. a scheduler job).
-    """
-    with _gc_paused(pause_gc):
-        return _evaluate_many(protocol, facts_list, bands, physics_context, chunk_size)
-
-
-@contextmanager
-def _gc_paused(pause: bool) -> Iterator[None]:
-    was_enabled = gc.isenabled()
-    if pause and was_enabled:
-        gc.disable()
-    try:
-        yield
-    finally:
-        if pause and was_enabled:
-            gc.enable()
-
-
-def _evaluate_many(
-    protocol: Any,
-    facts_list: Sequence[CandidateFacts],
-    bands: BandSet | Sequence[InterferenceBand] | None,
-    physics_context: PhysicsContext | None,
-    chunk_size: int,
-) -> list[Evaluation]:
-    return list(
-        iter_evaluations(
-            protocol, facts_list, bands, physics_context=physics_context, chunk_size=chunk_size
-        )
-    )
-
-
-def iter_evaluations(
-    protocol: Any,
-    facts: Iterable[CandidateFacts],
-    bands: BandSet | Sequence[InterferenceBand] | None = None,
-    *,
-    physics_context: PhysicsContext | None = None,
-    chunk_size: int = EVALUATION_CHUNK,
-) -> Iterator[Evaluation]:
-    """Evaluations in input order, computed ``chunk_size`` candidates at a time.
-
-    For large batches whose results are stored as they come: nothing accumulates, which keeps
-    Python's garbage collector from rescanning every live object again and again.
     """
     model = _model(protocol)
     band_set = _bands(protocol, bands)
-    chunk: list[CandidateFacts] = []
-    for item in facts:
-        chunk.append(item)
-        if len(chunk) >= chunk_size:
-            yield from _evaluate_chunk(model, chunk, band_set, physics_context)
-            chunk = []
-    if chunk:
-        yield from _evaluate_chunk(model, chunk, band_set, physics_context)
+    evaluations: list[Evaluation] = []
+    for begin in range(0, len(facts_list), max(chunk_size, 1)):
+        chunk = facts_list[begin : begin + max(chunk_size, 1)]
+        evaluations += _evaluate_chunk(model, chunk, band_set, physics_context)
+    return evaluations
 
 
 def _evaluate_chunk(
@@ -235,7 +185,7 @@ def _final(run: _Run, stage_index: int) -> Evaluation:
         reason_class=None,
         stage_entered_unix_s=facts.stage_entered_unix_s,
         deadline_unix_s=_deadline_unix_s(run.model.stages[stage_index], facts.stage_entered_unix_s),
-        signoffs=_signoff_statuses(
+        signoffs=signoff_statuses(
             run.model.stages[stage_index], facts.signoffs, facts.stage_entered_unix_s
         ),
     )
@@ -268,7 +218,7 @@ def _advance(run: _Run, stage_index: int) -> Evaluation:
             )
             held, hold_reason = False, None
             break
-        statuses = _signoff_statuses(stage, facts.signoffs, entered)
+        statuses = signoff_statuses(stage, facts.signoffs, entered)
         held, hold_reason = _hold(results, statuses, facts.manual_hold_released)
         if not held and _stage_complete(results, stage.name, statuses, facts.manual_hold_released):
             if stage_index == len(model.stages) - 1:
@@ -335,7 +285,7 @@ def _advance(run: _Run, stage_index: int) -> Evaluation:
         reason_class=reason_class,
         stage_entered_unix_s=entered,
         deadline_unix_s=_deadline_unix_s(stage, entered),
-        signoffs=_signoff_statuses(stage, facts.signoffs, entered),
+        signoffs=signoff_statuses(stage, facts.signoffs, entered),
     )
 
 
@@ -347,10 +297,15 @@ def _stage_complete(
             continue
         if result.outcome in (PASS, NOT_APPLICABLE):
             continue
-        if result.outcome == FAIL and result.on_fail == "hold" and released:
+        if released and _holds(result):
             continue
         return False
-    return all(status.met for status in statuses)
+    return signoffs_met(statuses)
+
+
+def _holds(result: CheckResult) -> bool:
+    """A result that holds the candidate for a person rather than deciding automatically."""
+    return result.outcome == INCONCLUSIVE or (result.outcome == FAIL and result.on_fail == "hold")
 
 
 def _hold(
@@ -359,8 +314,9 @@ def _hold(
     if released:
         return False, None
     for result in results:
-        if result.outcome == FAIL and result.on_fail == "hold":
-            return True, f"{result.kind}: {result.reason}"
+        if _holds(result):
+            label = " (inconclusive)" if result.outcome == INCONCLUSIVE else ""
+            return True, f"{result.kind}{label}: {result.reason}"
     for status in statuses:
         if status.declined_by:
             people = ", ".join(status.declined_by)
@@ -372,33 +328,6 @@ def _deadline_unix_s(stage: StageModel, entered_unix_s: float) -> float | None:
     if stage.deadline_hours is None:
         return None
     return entered_unix_s + stage.deadline_hours * 3600.0
-
-
-def signoff_statuses(
-    stage: StageModel, signoffs: Sequence[SignoffFact], entered_unix_s: float
-) -> tuple[SignoffStatus, ...]:
-    """Per rule of ``stage``: who approved or declined since entry (the one sign-off rule)."""
-    return _signoff_statuses(stage, signoffs, entered_unix_s)
-
-
-def _signoff_statuses(
-    stage: StageModel, signoffs: Sequence[SignoffFact], entered_unix_s: float
-) -> tuple[SignoffStatus, ...]:
-    """Per rule: distinct persons of the role whose latest sign-off (after entry) approves."""
-    statuses = []
-    for rule in stage.signoffs:
-        latest: dict[str, SignoffFact] = {}
-        relevant = [
-            s
-            for s in signoffs
-            if s.stage == stage.name and s.role == rule.role and s.unix_s >= entered_unix_s
-        ]
-        for signoff in sorted(relevant, key=lambda s: (s.unix_s, s.approve is False, s.person)):
-            latest[signoff.person] = signoff
-        approved = tuple(sorted(p for p, s in latest.items() if s.approve))
-        declined = tuple(sorted(p for p, s in latest.items() if not s.approve))
-        statuses.append(SignoffStatus(rule.role, rule.count, approved, declined))
-    return tuple(statuses)
 
 
 def _escalation(
@@ -462,18 +391,30 @@ def stage_entry_actions(
     return tuple(actions)
 
 
-_ACTION_PARAMS: dict[int, tuple[Any, dict[str, Any]]] = {}
+ActionKey = tuple[str, tuple[tuple[str, Any], ...]]
+_ACTION_PARAMS: dict[ActionKey, dict[str, Any]] = {}
+_ACTION_PARAMS_LIMIT = 4096
+
+
+def _frozen(value: Any) -> Any:
+    return tuple(value) if isinstance(value, list) else value
+
+
+def action_key(spec: Any) -> ActionKey:
+    """A hashable key equal for equal on_entry actions (kind and every key's value)."""
+    fields = type(spec).model_fields
+    return (spec.action, tuple((name, _frozen(getattr(spec, name))) for name in sorted(fields)))
 
 
 def _action_params(spec: Any) -> dict[str, Any]:
-    """The protocol keys of an on_entry action (cached per action model; specs are frozen)."""
-    cached = _ACTION_PARAMS.get(id(spec))
-    if cached is None or cached[0] is not spec:
-        cached = (spec, spec.model_dump(exclude={"action"}))
-        if len(_ACTION_PARAMS) > 4096:
+    """The protocol keys of an on_entry action, cached by the action's value."""
+    key = action_key(spec)
+    params = _ACTION_PARAMS.get(key)
+    if params is None:
+        if len(_ACTION_PARAMS) >= _ACTION_PARAMS_LIMIT:
             _ACTION_PARAMS.clear()
-        _ACTION_PARAMS[id(spec)] = cached
-    return {k: (list(v) if isinstance(v, list) else v) for k, v in cached[1].items()}
+        params = _ACTION_PARAMS[key] = spec.model_dump(exclude={"action"})
+    return {k: (list(v) if isinstance(v, list) else v) for k, v in params.items()}
 
 
 def initial_stage(protocol: Any) -> str:
@@ -488,8 +429,13 @@ def intake_decision(
     target: TargetFact | None,
     bands: BandSet | Sequence[InterferenceBand] | None = None,
 ) -> IntakeDecision:
-    """Whether a pipeline detection becomes a candidate under the protocol's [intake] rule."""
-    rule = _model(protocol).intake
+    """Whether a pipeline detection becomes a candidate under the protocol's [intake] rule.
+
+    Hits in listed bands are refused only when the protocol's band action is ``"reject"``;
+    with ``"flag"`` they are promoted and the known_interference check holds them for review.
+    """
+    model = _model(protocol)
+    rule = model.intake
     if target is None:
         return IntakeDecision(
             False, "The scan has no target, so the signal cannot be followed up.", "no_target"
@@ -508,14 +454,16 @@ def intake_decision(
             f"SNR {detection.snr:.1f} is below the intake minimum {rule.min_snr:g}.",
             "low_snr",
         )
-    if abs(detection.drift_hz_s) > rule.max_abs_drift_hz_s:
+    max_drift_hz_s = rule.max_abs_drift_at_hz_s(detection.frequency_hz)
+    if abs(detection.drift_hz_s) > max_drift_hz_s:
         return IntakeDecision(
             False,
             f"|drift| {abs(detection.drift_hz_s):.4f} Hz/s exceeds the intake maximum "
-            f"{rule.max_abs_drift_hz_s:g} Hz/s.",
+            f"{max_drift_hz_s:.4g} Hz/s.",
             "drift_out_of_range",
         )
-    if rule.exclude_interference_bands:
+    excludes = rule.exclude_interference_bands and model.interference_band_action == "reject"
+    if excludes:
         hit = _band_hit(detection, observation, _bands(protocol, bands))
         if hit is not None:
             return IntakeDecision(
@@ -525,8 +473,8 @@ def intake_decision(
             )
     return IntakeDecision(
         True,
-        f"SNR {detection.snr:.1f} >= {rule.min_snr:g}, |drift| <= {rule.max_abs_drift_hz_s:g} Hz/s"
-        + (", outside listed bands." if rule.exclude_interference_bands else "."),
+        f"SNR {detection.snr:.1f} >= {rule.min_snr:g}, |drift| <= {max_drift_hz_s:.4g} Hz/s"
+        + (", outside listed bands." if excludes else "."),
     )
 
 

@@ -3,14 +3,29 @@
 For a scan with channel width w, the predicted track at time t has tolerance
 ``max(frequency_tolerance_floor_hz, sigma_multiplier * sigma_f(t)) + s(t)
 + scan_margin_channels * w`` (see ``schema.MatchingParams``; s(t) bounds the fast-gap shortcut,
-see ``protocol.reference``). A detection lies on the track when its frequency is within the
-tolerance of the prediction at the detection's own time. Linking uses frequency only: drift is
-judged by the checks (nonzero_drift, doppler_consistency), so that a signal on the track with
-the wrong drift is seen and rejected rather than silently left out.
+see ``protocol.reference``). A detection is linked when both its frequency and its drift agree
+with the prediction at the detection's own instant (scan start + ``time_offset_s``): the
+frequency within that tolerance, the drift within ``sigma_multiplier`` times the combined drift
+uncertainty (the reference's, grown into the prediction, and one drift resolution of the scan).
+In each scan only the best such hit is linked (smallest normalised distance); further hits that
+also fit make the link ambiguous (``ObservationView.extra_matches``).
 
-The search window of a scan is the band the track plus tolerance sweeps during the scan; a scan
-"covers" the prediction when it is complete and its recorded band contains the whole window, and
-only a covering scan can count as "observed and absent" (an open scan may still receive the hit).
+A hit in a target scan whose frequency is on the track but whose drift is not is kept as the
+scan's ``drift_mismatch``: it may be the signal with a drift that does not follow the sky, or an
+unrelated hit; checks weigh it as ambiguous evidence, never as a link.
+
+Scans away from the target (off-source scans of a cadence, other beams) are searched over a
+wider band: ``D * |t - t0| + off_source_margin_hz`` either side of the reference frequency
+f0 at t0, with D the largest plausible drift (``ProtocolModel.off_source_max_abs_drift_hz_s``),
+since a signal that leaks in away from the target need not follow the sky-fixed track. Any hit
+there, at any drift, is the scan's ``nearby`` hit when none is on the track.
+
+Partner reports are matched the same way at their own instant (``ReportFact.unix_s``).
+
+The search window of a scan is the band the track plus tolerance sweeps during the scan
+(widened as above away from the target); a scan "covers" the prediction when it is complete and its
+recorded band contains the whole window, and only a covering scan can count as "observed and
+absent" (an open scan may still receive the hit).
 """
 
 from __future__ import annotations
@@ -59,11 +74,17 @@ class DetectionView:
     predicted_drift_hz_s: float
     earth_drift_hz_s: float
     drift_resolution_hz_s: float
+    drift_tolerance_hz_s: float = 0.0
 
     @property
     def offset_hz(self) -> float:
         """Observed minus predicted frequency, Hz."""
         return self.detection.frequency_hz - self.predicted_frequency_hz
+
+    @property
+    def drift_offset_hz_s(self) -> float:
+        """Observed minus predicted drift, Hz/s."""
+        return self.detection.drift_hz_s - self.predicted_drift_hz_s
 
     @property
     def residual_drift_hz_s(self) -> float:
@@ -81,11 +102,35 @@ class ObservationView:
     covers: bool
     is_target_scan: bool
     linked: tuple[DetectionView, ...]
+    extra_matches: int = 0
+    drift_mismatch: DetectionView | None = None
+    nearby: DetectionView | None = None
 
     @property
     def present(self) -> bool:
-        """True when at least one detection of the scan lies on the predicted track."""
+        """True when a detection of the scan lies on the predicted track (frequency and drift)."""
         return bool(self.linked)
+
+    @property
+    def partly_covers(self) -> bool:
+        """The scan's band overlaps the window without containing it."""
+        scan = self.observation
+        overlaps = scan.frequency_min_hz <= self.window_high_hz and (
+            self.window_low_hz <= scan.frequency_max_hz
+        )
+        return overlaps and not self.covers
+
+    @property
+    def seen_at_any_drift(self) -> bool:
+        """On the track, or (away from the target) anywhere in the widened window."""
+        return self.present or self.nearby is not None
+
+    @property
+    def ambiguous(self) -> bool:
+        """Evidence in this scan that could belong to another signal."""
+        if self.present:
+            return self.extra_matches > 0
+        return self.drift_mismatch is not None or self.nearby is not None
 
 
 @dataclass(frozen=True, slots=True)
@@ -100,11 +145,15 @@ class ReportView:
     present: bool
     earth_drift_hz_s: float
     drift_resolution_hz_s: float
+    predicted_drift_hz_s: float = 0.0
+    frequency_tolerance_hz: float = 0.0
+    drift_tolerance_hz_s: float = 0.0
+    drift_mismatch: bool = False
 
     @property
     def residual_drift_hz_s(self) -> float | None:
-        """Reported drift minus Earth drift at mid-report, Hz/s (None without a drift)."""
-        if not self.present or self.report.drift_hz_s is None:
+        """Reported drift minus the Earth drift at the report's instant, Hz/s (None without)."""
+        if not (self.present or self.drift_mismatch) or self.report.drift_hz_s is None:
             return None
         return self.report.drift_hz_s - self.earth_drift_hz_s
 
@@ -197,21 +246,25 @@ def _protocol_model(protocol: Any) -> ProtocolModel:
 
 @dataclass(frozen=True, slots=True)
 class _Item:
-    """A scan or report: where, when, which channel width, which detections."""
+    """A scan or report: where, when, which channel width, which detections, how wide to look.
+
+    ``wide``: a scan away from the target, searched at any drift over the widened window.
+    """
 
     site: SiteFact
     start_unix_s: float
     duration_s: float
     channel_width_hz: float
     detections: tuple[DetectionFact, ...]
+    wide: bool = False
 
 
 @dataclass(frozen=True, slots=True)
 class _Batch:
     """Windows of every item and predictions at every detection of many candidates.
 
-    Item arrays are indexed by global item number, detection arrays by global detection
-    number; candidate c owns items item_start[c]:item_start[c+1] and detections
+    Item lists are indexed by global item number, detection lists by global detection number;
+    candidate c owns items item_start[c]:item_start[c+1] and detections
     detection_start[item] : detection_start[item + 1] of each of its items.
     """
 
@@ -219,14 +272,16 @@ class _Batch:
     item_start: list[int]
     low_hz: list[float]
     high_hz: list[float]
-    middle_frequency_hz: list[float]
-    middle_earth_drift_hz_s: list[float]
     detection_start: list[int]
-    on_track: list[bool]
+    on_frequency: list[bool]
+    on_drift: list[bool]
+    in_window: list[bool]
+    score: list[float]
     detection_unix_s: list[float]
     detection_frequency_hz: list[float]
     detection_tolerance_hz: list[float]
     detection_drift_hz_s: list[float]
+    detection_drift_tolerance_hz_s: list[float]
     detection_earth_drift_hz_s: list[float]
 
 
@@ -239,8 +294,8 @@ def _predict_items(
     """Sample every item's span and every detection time; predict all with one call."""
     pairs: list[tuple[SiteFact, TargetFact]] = []
     numbers: dict[tuple[SiteFact, TargetFact], int] = {}
-    item_pair, item_owner, start, duration, width, n_detections = [], [], [], [], [], []
-    detection_times, observed = [], []
+    item_pair, item_owner, start, duration, width, n_detections, wide = [], [], [], [], [], [], []
+    detection_times, observed, observed_drift = [], [], []
     item_start = [0]
     for owner, ((_, _, target), items) in enumerate(
         zip(references, items_per_candidate, strict=True)
@@ -257,9 +312,11 @@ def _predict_items(
             duration.append(item.duration_s)
             width.append(item.channel_width_hz)
             n_detections.append(len(item.detections))
+            wide.append(item.wide)
             for d in item.detections:
                 detection_times.append(item.start_unix_s + d.time_offset_s)
                 observed.append(d.frequency_hz)
+                observed_drift.append(d.drift_hz_s)
         item_start.append(item_start[-1] + len(items))
     starts = np.array(start, dtype=np.float64)
     spans = np.maximum(np.array(duration, dtype=np.float64), 0.0)
@@ -292,65 +349,166 @@ def _predict_items(
     frequency = prediction.frequency_hz
     low = np.minimum.reduceat(frequency[:n_samples] - tolerance[:n_samples], first)
     high = np.maximum.reduceat(frequency[:n_samples] + tolerance[:n_samples], first)
-    middle = first + counts // 2
+    low, high = _widened_away_from_target(
+        protocol, signals, owner_of_item, np.array(wide, dtype=bool), starts, spans, low, high
+    )
+    detection_owner = np.repeat(owner_of_item, detections)
+    detection_resolution = np.repeat(widths / np.where(spans > 0, spans, np.inf), detections)
+    reference_sigma = np.array([r.drift_uncertainty_hz_s for r in signals], dtype=np.float64)
+    drift_tolerance = protocol.matching.sigma_multiplier * np.hypot(
+        reference_sigma[detection_owner],
+        protocol.matching.reference_drift_uncertainty_resolutions * detection_resolution,
+    )
     detection_frequency = frequency[n_samples:]
     detection_tolerance = tolerance[n_samples:]
+    detection_drift = prediction.drift_hz_s[n_samples:]
+    frequency_offset = np.array(observed, dtype=np.float64) - detection_frequency
+    drift_offset = np.array(observed_drift, dtype=np.float64) - detection_drift
+    detection_low = np.repeat(low, detections)
+    detection_high = np.repeat(high, detections)
+    observed_f = np.array(observed, dtype=np.float64)
     return _Batch(
         references=signals,
         item_start=item_start,
         low_hz=low.tolist(),
         high_hz=high.tolist(),
-        middle_frequency_hz=frequency[middle].tolist(),
-        middle_earth_drift_hz_s=prediction.earth_drift_hz_s[middle].tolist(),
         detection_start=np.concatenate([[0], np.cumsum(detections)]).astype(np.int64).tolist(),
-        on_track=(
-            np.abs(np.array(observed, dtype=np.float64) - detection_frequency)
-            <= detection_tolerance
+        on_frequency=(np.abs(frequency_offset) <= detection_tolerance).tolist(),
+        on_drift=(np.abs(drift_offset) <= drift_tolerance).tolist(),
+        in_window=((observed_f >= detection_low) & (observed_f <= detection_high)).tolist(),
+        score=(
+            (frequency_offset / detection_tolerance) ** 2 + (drift_offset / drift_tolerance) ** 2
         ).tolist(),
         detection_unix_s=prediction.unix_s[n_samples:].tolist(),
         detection_frequency_hz=detection_frequency.tolist(),
         detection_tolerance_hz=detection_tolerance.tolist(),
-        detection_drift_hz_s=prediction.drift_hz_s[n_samples:].tolist(),
+        detection_drift_hz_s=detection_drift.tolist(),
+        detection_drift_tolerance_hz_s=drift_tolerance.tolist(),
         detection_earth_drift_hz_s=prediction.earth_drift_hz_s[n_samples:].tolist(),
     )
 
 
-def _linked(
-    batch: _Batch, item: int, observation: ObservationFact, force_link_id: int | None
-) -> tuple[DetectionView, ...]:
+def _widened_away_from_target(
+    protocol: ProtocolModel,
+    signals: Sequence[ReferenceSignal],
+    owner_of_item: np.ndarray,
+    wide: np.ndarray,
+    starts: np.ndarray,
+    spans: np.ndarray,
+    low: np.ndarray,
+    high: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Windows of scans away from the target widened to f0 +- (D |t - t0| + margin)."""
+    if not wide.any():
+        return low, high
+    f0 = np.array([r.observed_frequency_hz for r in signals], dtype=np.float64)[owner_of_item]
+    t0 = np.array([r.unix_s for r in signals], dtype=np.float64)[owner_of_item]
+    limit = np.array(
+        [protocol.off_source_max_abs_drift_hz_s(r.observed_frequency_hz) for r in signals],
+        dtype=np.float64,
+    )[owner_of_item]
+    farthest_s = np.maximum(np.abs(starts - t0), np.abs(starts + spans - t0))
+    half_width = limit * farthest_s + protocol.matching.off_source_margin_hz
+    return (
+        np.where(wide, np.minimum(low, f0 - half_width), low),
+        np.where(wide, np.maximum(high, f0 + half_width), high),
+    )
+
+
+def _view_of(
+    batch: _Batch, k: int, detection: DetectionFact, observation: ObservationFact
+) -> DetectionView:
+    return DetectionView(
+        detection=detection,
+        observation=observation,
+        unix_s=batch.detection_unix_s[k],
+        predicted_frequency_hz=batch.detection_frequency_hz[k],
+        tolerance_hz=batch.detection_tolerance_hz[k],
+        predicted_drift_hz_s=batch.detection_drift_hz_s[k],
+        earth_drift_hz_s=batch.detection_earth_drift_hz_s[k],
+        drift_resolution_hz_s=drift_resolution_hz_s(observation),
+        drift_tolerance_hz_s=batch.detection_drift_tolerance_hz_s[k],
+    )
+
+
+@dataclass(frozen=True, slots=True)
+class _ScanMatch:
+    """What a scan holds for the candidate (see ObservationView)."""
+
+    linked: tuple[DetectionView, ...] = ()
+    extra_matches: int = 0
+    drift_mismatch: DetectionView | None = None
+    nearby: DetectionView | None = None
+
+
+_NO_MATCH = _ScanMatch()
+
+
+def _scan_match(
+    batch: _Batch,
+    item: int,
+    observation: ObservationFact,
+    force_link_id: int | None,
+    wide: bool,
+) -> _ScanMatch:
+    """The best link of a scan, how many other hits also fit, and the ambiguous leftovers."""
     begin, end = batch.detection_start[item], batch.detection_start[item + 1]
     if begin == end:
+        return _NO_MATCH
+    detections = observation.detections
+    if force_link_id is not None:
+        for offset, detection in enumerate(detections):
+            if detection.id == force_link_id:
+                return _ScanMatch(linked=(_view_of(batch, begin + offset, detection, observation),))
+    on_f = batch.on_frequency[begin:end]
+    if True not in on_f and not (wide and True in batch.in_window[begin:end]):
+        return _NO_MATCH
+    on_d = batch.on_drift[begin:end]
+    score = batch.score[begin:end]
+    full = [i for i in range(end - begin) if on_f[i] and on_d[i]]
+    if full:
+        best = min(full, key=lambda i: (score[i], detections[i].id))
+        view = _view_of(batch, begin + best, detections[best], observation)
+        return _ScanMatch(linked=(view,), extra_matches=len(full) - 1)
+    frequency_only = [i for i in range(end - begin) if on_f[i]]
+    mismatch = None
+    if frequency_only:
+        best = min(frequency_only, key=lambda i: (score[i], detections[i].id))
+        mismatch = _view_of(batch, begin + best, detections[best], observation)
+    nearby = None
+    if wide:
+        inside = [i for i in range(end - begin) if batch.in_window[begin + i]]
+        if inside:
+            best = min(inside, key=lambda i: (score[i], detections[i].id))
+            nearby = _view_of(batch, begin + best, detections[best], observation)
+    return _ScanMatch(drift_mismatch=None if wide else mismatch, nearby=nearby)
+
+
+def _report_detection(report: ReportFact) -> tuple[DetectionFact, ...]:
+    """A partner's sighting as a pseudo-detection at the report's own instant (offset 0)."""
+    if not report.detected or report.frequency_hz is None:
         return ()
-    on_track = batch.on_track[begin:end]
-    if force_link_id is None and True not in on_track:
-        return ()
-    resolution = drift_resolution_hz_s(observation)
-    views = []
-    for offset, detection in enumerate(observation.detections):
-        if on_track[offset] or detection.id == force_link_id:
-            k = begin + offset
-            views.append(
-                DetectionView(
-                    detection=detection,
-                    observation=observation,
-                    unix_s=batch.detection_unix_s[k],
-                    predicted_frequency_hz=batch.detection_frequency_hz[k],
-                    tolerance_hz=batch.detection_tolerance_hz[k],
-                    predicted_drift_hz_s=batch.detection_drift_hz_s[k],
-                    earth_drift_hz_s=batch.detection_earth_drift_hz_s[k],
-                    drift_resolution_hz_s=resolution,
-                )
-            )
-    return tuple(views)
+    drift = 0.0 if report.drift_hz_s is None else report.drift_hz_s
+    return (DetectionFact(-report.id, -report.id, report.frequency_hz, drift, 0.0, 0.0),)
 
 
 def _candidate_items(facts: CandidateFacts) -> list[_Item]:
+    observations = facts.all_observations()
     items = [
-        _Item(o.site, o.start_unix_s, o.duration_s, o.channel_width_hz, o.detections)
-        for o in facts.all_observations()
+        _Item(
+            o.site,
+            o.start_unix_s,
+            o.duration_s,
+            o.channel_width_hz,
+            o.detections,
+            wide=index > 0 and not is_target_scan(o, facts.target),
+        )
+        for index, o in enumerate(observations)
     ]
     width = facts.reference_observation.channel_width_hz
-    items += [_Item(r.site, r.unix_s, r.duration_s, width, ()) for r in facts.reports]
+    items += [
+        _Item(r.site, r.unix_s, r.duration_s, width, _report_detection(r)) for r in facts.reports
+    ]
     return items
 
 
@@ -373,38 +531,73 @@ def _candidate_view(
             and observation.frequency_min_hz <= low[k]
             and high[k] <= observation.frequency_max_hz
         )
+        target_scan = index == 0 or is_target_scan(observation, facts.target)
+        match = _scan_match(
+            batch,
+            k,
+            observation,
+            facts.reference.id if index == 0 else None,
+            wide=not target_scan,
+        )
         views.append(
             ObservationView(
-                observation,
-                low[k],
-                high[k],
-                covers,
-                index == 0 or is_target_scan(observation, facts.target),
-                _linked(batch, k, observation, facts.reference.id if index == 0 else None),
+                observation=observation,
+                window_low_hz=low[k],
+                window_high_hz=high[k],
+                covers=covers,
+                is_target_scan=target_scan,
+                linked=match.linked,
+                extra_matches=match.extra_matches,
+                drift_mismatch=match.drift_mismatch,
+                nearby=match.nearby,
             )
         )
     reference = batch.references[candidate]
-    reports = []
-    for i, report in enumerate(facts.reports):
-        k = base + len(observations) + i
-        present = (
-            report.detected
-            and report.frequency_hz is not None
-            and low[k] <= report.frequency_hz <= high[k]
-        )
-        reports.append(
-            ReportView(
-                report=report,
-                predicted_frequency_hz=batch.middle_frequency_hz[k],
-                window_low_hz=low[k],
-                window_high_hz=high[k],
-                covers=report.frequency_min_hz <= low[k] and high[k] <= report.frequency_max_hz,
-                present=bool(present),
-                earth_drift_hz_s=batch.middle_earth_drift_hz_s[k],
-                drift_resolution_hz_s=reference.drift_resolution_hz_s,
-            )
-        )
+    reports = [
+        _report_view(batch, base + len(observations) + i, report, reference)
+        for i, report in enumerate(facts.reports)
+    ]
     return CandidateView(facts, model, bands, context, reference, tuple(views), tuple(reports))
+
+
+def _report_view(
+    batch: _Batch, k: int, report: ReportFact, reference: ReferenceSignal
+) -> ReportView:
+    """A report judged at its own instant: on the track in frequency, and in drift if given."""
+    begin, end = batch.detection_start[k], batch.detection_start[k + 1]
+    covers = report.frequency_min_hz <= batch.low_hz[k] and (
+        batch.high_hz[k] <= report.frequency_max_hz
+    )
+    common = {
+        "report": report,
+        "window_low_hz": batch.low_hz[k],
+        "window_high_hz": batch.high_hz[k],
+        "covers": covers,
+        "drift_resolution_hz_s": reference.drift_resolution_hz_s,
+    }
+    if begin == end:
+        middle = _report_middle(batch, k)
+        return ReportView(present=False, **middle, **common)
+    on_frequency = batch.on_frequency[begin]
+    drift_agrees = report.drift_hz_s is None or batch.on_drift[begin]
+    return ReportView(
+        predicted_frequency_hz=batch.detection_frequency_hz[begin],
+        present=on_frequency and drift_agrees,
+        earth_drift_hz_s=batch.detection_earth_drift_hz_s[begin],
+        predicted_drift_hz_s=batch.detection_drift_hz_s[begin],
+        frequency_tolerance_hz=batch.detection_tolerance_hz[begin],
+        drift_tolerance_hz_s=batch.detection_drift_tolerance_hz_s[begin],
+        drift_mismatch=on_frequency and not drift_agrees,
+        **common,
+    )
+
+
+def _report_middle(batch: _Batch, k: int) -> dict[str, float]:
+    """Prediction values of a report without a sighting: the window's centre."""
+    return {
+        "predicted_frequency_hz": 0.5 * (batch.low_hz[k] + batch.high_hz[k]),
+        "earth_drift_hz_s": 0.0,
+    }
 
 
 def build_candidate_views(
@@ -463,7 +656,15 @@ def search_windows_hz(
         return {}
     context = physics_context or default_physics_context()
     items = [
-        _Item(o.site, o.start_unix_s, o.duration_s, o.channel_width_hz, ()) for o in observations
+        _Item(
+            o.site,
+            o.start_unix_s,
+            o.duration_s,
+            o.channel_width_hz,
+            (),
+            wide=o.id != reference_observation.id and not is_target_scan(o, target),
+        )
+        for o in observations
     ]
     batch = _predict_items(
         context,
@@ -485,7 +686,8 @@ def search_window_hz(
     """(low_hz, high_hz): where the predicted track can lie during ``other_observation``.
 
     The track sampled over the scan, widened by the matching tolerance (uncertainty and the
-    scan's channel width). The service fetches that scan's detections inside this band.
+    scan's channel width), and for scans away from the target by the largest plausible drift
+    over the time since the reference. The service fetches that scan's detections inside it.
     """
     windows = search_windows_hz(
         protocol,

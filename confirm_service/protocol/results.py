@@ -13,8 +13,11 @@ PASS = "pass"
 FAIL = "fail"
 PENDING = "pending"
 NOT_APPLICABLE = "not_applicable"
-OUTCOMES = (PASS, FAIL, PENDING, NOT_APPLICABLE)
-Outcome = Literal["pass", "fail", "pending", "not_applicable"]
+INCONCLUSIVE = "inconclusive"
+"""The data exist but cannot decide (partial coverage, ambiguous links, a flagged band): the
+stage machine holds the candidate for a person instead of deciding automatically."""
+OUTCOMES = (PASS, FAIL, PENDING, NOT_APPLICABLE, INCONCLUSIVE)
+Outcome = Literal["pass", "fail", "pending", "not_applicable", "inconclusive"]
 
 ACTION_ESCALATE = "escalate"
 REASON_CLASS_EXPIRED = "expired"

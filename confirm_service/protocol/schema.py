@@ -4,12 +4,15 @@ Layout (every numeric key carries its unit)::
 
     name, version, description          strings
     interference_bands                  path of the band list, relative to the protocol file
-    [intake]    min_snr, max_abs_drift_hz_s, exclude_interference_bands, require_on_source
+    interference_band_action            "flag" (hold for review) or "reject"
+    [intake]    min_snr, max_abs_drift_hz_s | max_abs_drift_nhz, exclude_interference_bands,
+                require_on_source
     [matching]  frequency_tolerance_floor_hz, sigma_multiplier,
                 reference_frequency_uncertainty_channels,
-                reference_drift_uncertainty_resolutions, scan_margin_channels
-    [screening] off_source_max_drift_hz_s, off_source_margin_hz, occupancy_span_hours,
-                occupancy_drift_resolutions (all optional)
+                reference_drift_uncertainty_resolutions, scan_margin_channels,
+                off_source_max_abs_drift_hz_s | off_source_max_abs_drift_nhz (optional),
+                off_source_margin_hz (optional)
+    [screening] occupancy_span_hours, occupancy_drift_resolutions (optional)
     [[stages]]  name, description, checks, deadline_hours, on_deadline, contacts, signoffs,
                 on_entry
 
@@ -23,7 +26,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal, Union
 
-from pydantic import Field, create_model, field_validator
+from pydantic import Field, create_model, field_validator, model_validator
 
 from confirm_service.protocol.checks import REGISTRY, CheckKind
 from confirm_service.protocol.checks._base import (
@@ -34,6 +37,8 @@ from confirm_service.protocol.checks._base import (
     PositiveFloat,
     PositiveInt,
     StrictModel,
+    drift_limit_hz_s,
+    exactly_one_drift_limit,
 )
 
 ON_FAIL_VALUES = ("reject", "hold")
@@ -66,12 +71,26 @@ CheckSpec = Annotated[
 
 
 class IntakeRule(StrictModel):
-    """Which pipeline detections become candidates."""
+    """Which pipeline detections become candidates.
+
+    The drift limit is ``max_abs_drift_hz_s`` (Hz/s) or ``max_abs_drift_nhz`` (Hz/s per GHz of
+    the hit's frequency), exactly one of them.
+    """
 
     min_snr: PositiveFloat
-    max_abs_drift_hz_s: PositiveFloat
+    max_abs_drift_hz_s: PositiveFloat | None = None
+    max_abs_drift_nhz: PositiveFloat | None = None
     exclude_interference_bands: bool
     require_on_source: bool = True
+
+    @model_validator(mode="after")
+    def _one_drift_limit(self) -> IntakeRule:
+        exactly_one_drift_limit(self, "max_abs_drift")
+        return self
+
+    def max_abs_drift_at_hz_s(self, frequency_hz: float) -> float:
+        """The drift limit (Hz/s) for a hit at ``frequency_hz``."""
+        return drift_limit_hz_s(self.max_abs_drift_hz_s, self.max_abs_drift_nhz, frequency_hz)
 
 
 class MatchingParams(StrictModel):
@@ -86,7 +105,15 @@ class MatchingParams(StrictModel):
     frequency uncertainty (reference_frequency_uncertainty_channels reference channels) and
     drift uncertainty (reference_drift_uncertainty_resolutions drift resolutions) over |t - t0|,
     and s(t) the bound on the prediction shortcut's error (``protocol.reference``: per Hz/s of
-    residual drift, about 1.2 Hz one day and 11 Hz thirty days from the reference).
+    residual drift, about 1.2 Hz one day and 11 Hz thirty days from the reference). A hit is
+    linked only when its drift also agrees with the predicted drift within
+    ``sigma_multiplier`` times the combined drift uncertainty (reference and scan).
+
+    Scans away from the target (off-source scans, other beams) are searched wider: a signal
+    that enters through the sidelobes need not follow the sky-fixed track, so any hit within
+    ``D * |t - t0| + off_source_margin_hz`` of the reference frequency counts, at any drift, with
+    D the largest plausible drift: ``off_source_max_abs_drift_hz_s`` or ``..._nhz``, else the
+    intake limit.
     """
 
     frequency_tolerance_floor_hz: PositiveFloat
@@ -94,23 +121,28 @@ class MatchingParams(StrictModel):
     reference_frequency_uncertainty_channels: PositiveFloat
     reference_drift_uncertainty_resolutions: PositiveFloat
     scan_margin_channels: NonNegativeFloat
+    off_source_max_abs_drift_hz_s: PositiveFloat | None = None
+    off_source_max_abs_drift_nhz: PositiveFloat | None = None
+    off_source_margin_hz: NonNegativeFloat = 0.0
+
+    @model_validator(mode="after")
+    def _one_off_source_limit(self) -> MatchingParams:
+        exactly_one_drift_limit(self, "off_source_max_abs_drift", required=False)
+        return self
 
 
 class ScreeningParams(StrictModel):
     """How a completed cadence's hits are screened in bulk before any becomes a candidate.
 
     The thresholds, bands, zero-drift multiple and on/off counts come from ``[intake]`` and the
-    protocol's own ``nonzero_drift`` and ``on_off_cadence`` checks; only what those do not say
-    is here. Off-source scans are searched, at any drift, over
-    ``off_source_max_drift_hz_s * time span + off_source_margin_hz`` around the hit's track
-    (``off_source_max_drift_hz_s`` defaults to the intake's drift limit). Occupancy: a hit at
+    protocol's own ``nonzero_drift`` and ``on_off_cadence`` checks, and the off-source search
+    width from ``[matching]`` (the same rule the checks use); only what those do not say is
+    here. Occupancy: a hit at
     the same topocentric frequency (matching floor plus channel margins) and drift (within
     ``occupancy_drift_resolutions`` drift resolutions) in scans of other targets at the same
     site within ``occupancy_span_hours`` is local interference; 0 hours switches it off.
     """
 
-    off_source_max_drift_hz_s: PositiveFloat | None = None
-    off_source_margin_hz: NonNegativeFloat = 100.0
     occupancy_span_hours: NonNegativeFloat = 24.0
     occupancy_drift_resolutions: PositiveFloat = 2.0
 
@@ -175,16 +207,37 @@ class StageModel(StrictModel):
 
 
 class ProtocolModel(StrictModel):
-    """A whole protocol file."""
+    """A whole protocol file.
+
+    ``interference_band_action`` says what a hit in the listed bands means: ``"flag"`` (the
+    known_interference check is inconclusive, so a person reviews the candidate; intake still
+    promotes such hits) or ``"reject"`` (the check fails; intake may refuse the hit). Files
+    written before the option existed meant ``"reject"``.
+    """
 
     name: NonEmptyStr
     version: NonEmptyStr
     description: NonEmptyStr
     interference_bands: NonEmptyStr | None = None
+    interference_band_action: Literal["flag", "reject"] = "reject"
     intake: IntakeRule
     matching: MatchingParams
     screening: ScreeningParams = ScreeningParams()
     stages: list[StageModel] = Field(min_length=1)
+
+    def off_source_max_abs_drift_hz_s(self, frequency_hz: float) -> float:
+        """Largest plausible drift (Hz/s) of a signal seen away from the target."""
+        matching = self.matching
+        if (
+            matching.off_source_max_abs_drift_hz_s is None
+            and matching.off_source_max_abs_drift_nhz is None
+        ):
+            return self.intake.max_abs_drift_at_hz_s(frequency_hz)
+        return drift_limit_hz_s(
+            matching.off_source_max_abs_drift_hz_s,
+            matching.off_source_max_abs_drift_nhz,
+            frequency_hz,
+        )
 
     def stage_names(self) -> tuple[str, ...]:
         """Stage names in order."""

@@ -124,6 +124,16 @@ class ScreeningRules:
     off_source_margin_hz: float
     occupancy_span_s: float
     occupancy_drift_resolutions: float
+    max_abs_drift_per_hz: float = 0.0
+    off_source_drift_per_hz: float = 0.0
+
+    def drift_limit_hz_s(self, frequency_hz: FloatArray) -> FloatArray:
+        """The intake's |drift| limit at each frequency (Hz/s; a per-GHz limit scales)."""
+        return self.max_abs_drift_hz_s + self.max_abs_drift_per_hz * frequency_hz
+
+    def off_source_drift_hz_s(self, frequency_hz: FloatArray) -> FloatArray:
+        """Largest plausible drift of a signal seen away from the target (Hz/s)."""
+        return self.off_source_max_drift_hz_s + self.off_source_drift_per_hz * frequency_hz
 
     @classmethod
     def from_protocol(cls, model: ProtocolModel) -> ScreeningRules:
@@ -131,27 +141,45 @@ class ScreeningRules:
         checks = {c.kind: c for stage in model.stages for c in reversed(stage.checks)}
         zero = checks.get("nonzero_drift")
         cadence = checks.get("on_off_cadence")
-        screening = model.screening
+        intake, matching = model.intake, model.matching
+        # a limit in Hz/s, or in nHz (Hz/s per GHz) that scales with the hit's frequency
+        intake_drift = _limit_pair(intake.max_abs_drift_hz_s, intake.max_abs_drift_nhz)
+        off_drift = _limit_pair(
+            matching.off_source_max_abs_drift_hz_s, matching.off_source_max_abs_drift_nhz
+        )
+        if off_drift == (0.0, 0.0):
+            off_drift = intake_drift
         return cls(
-            min_snr=model.intake.min_snr,
-            max_abs_drift_hz_s=model.intake.max_abs_drift_hz_s,
-            exclude_bands=model.intake.exclude_interference_bands,
+            min_snr=intake.min_snr,
+            max_abs_drift_hz_s=intake_drift[0],
+            max_abs_drift_per_hz=intake_drift[1],
+            exclude_bands=(
+                intake.exclude_interference_bands and model.interference_band_action == "reject"
+            ),
             zero_drift_resolutions=getattr(zero, "resolution_multiplier", None),
             min_on_scans=getattr(cadence, "min_on_scans", None),
             min_off_scans=getattr(cadence, "min_off_scans", 0),
             min_on_fraction=getattr(cadence, "min_on_fraction", 1.0),
-            frequency_floor_hz=model.matching.frequency_tolerance_floor_hz,
-            sigma_multiplier=model.matching.sigma_multiplier,
-            frequency_uncertainty_channels=model.matching.reference_frequency_uncertainty_channels,
-            drift_uncertainty_resolutions=model.matching.reference_drift_uncertainty_resolutions,
-            margin_channels=model.matching.scan_margin_channels,
-            off_source_max_drift_hz_s=(
-                screening.off_source_max_drift_hz_s or model.intake.max_abs_drift_hz_s
-            ),
-            off_source_margin_hz=screening.off_source_margin_hz,
-            occupancy_span_s=screening.occupancy_span_hours * 3600.0,
-            occupancy_drift_resolutions=screening.occupancy_drift_resolutions,
+            frequency_floor_hz=matching.frequency_tolerance_floor_hz,
+            sigma_multiplier=matching.sigma_multiplier,
+            frequency_uncertainty_channels=matching.reference_frequency_uncertainty_channels,
+            drift_uncertainty_resolutions=matching.reference_drift_uncertainty_resolutions,
+            margin_channels=matching.scan_margin_channels,
+            off_source_max_drift_hz_s=off_drift[0],
+            off_source_drift_per_hz=off_drift[1],
+            off_source_margin_hz=matching.off_source_margin_hz,
+            occupancy_span_s=model.screening.occupancy_span_hours * 3600.0,
+            occupancy_drift_resolutions=model.screening.occupancy_drift_resolutions,
         )
+
+
+def _limit_pair(limit_hz_s: float | None, limit_nhz: float | None) -> tuple[float, float]:
+    """(Hz/s, Hz/s per Hz) of a drift limit given in Hz/s or in nHz (Hz/s per GHz)."""
+    if limit_hz_s is not None:
+        return float(limit_hz_s), 0.0
+    if limit_nhz is not None:
+        return 0.0, float(limit_nhz) * 1e-9
+    return 0.0, 0.0
 
 
 @dataclass(frozen=True)
@@ -319,7 +347,8 @@ def immediate_codes(scan: ScanHits, rules: ScreeningRules, bands: BandEdges) -> 
     """Rules 1-3 for every hit of an on-source scan (0 where none applies)."""
     codes = np.zeros(scan.size, dtype=np.int64)
     _assign(codes, scan.snr < rules.min_snr, Reason.LOW_SNR)
-    _assign(codes, np.abs(scan.drift_hz_s) > rules.max_abs_drift_hz_s, Reason.DRIFT_OUT_OF_RANGE)
+    too_fast = np.abs(scan.drift_hz_s) > rules.drift_limit_hz_s(scan.frequency_hz)
+    _assign(codes, too_fast, Reason.DRIFT_OUT_OF_RANGE)
     if rules.exclude_bands:
         end = scan.frequency_hz + scan.drift_hz_s * scan.duration_s
         swept = bands.overlaps(
@@ -377,11 +406,13 @@ def drift_half_width_hz_s(rules: ScreeningRules, source: ScanHits, other: ScanHi
     )
 
 
-def wide_half_width_hz(rules: ScreeningRules, source: ScanHits, other: ScanHits) -> float:
+def wide_half_width_hz(
+    rules: ScreeningRules, source: ScanHits, rows: IntArray, other: ScanHits
+) -> FloatArray:
     """Half-width searched in off-source scans: any drift up to the limit over the span (Hz)."""
     span_s = abs(other.start_unix_s - source.start_unix_s) + other.duration_s
     return (
-        rules.off_source_max_drift_hz_s * span_s
+        rules.off_source_drift_hz_s(source.frequency_hz[rows]) * span_s
         + rules.off_source_margin_hz
         + rules.margin_channels * other.channel_width_hz
     )
@@ -424,7 +455,7 @@ def matches_with_drift(
     return query[agree], position[agree]
 
 
-def covered(scan: ScanHits, centre_hz: FloatArray, half_width_hz: float) -> BoolArray:
+def covered(scan: ScanHits, centre_hz: FloatArray, half_width_hz: float | FloatArray) -> BoolArray:
     """True where the scan's recorded band contains the whole window."""
     return (centre_hz - half_width_hz >= scan.frequency_min_hz) & (
         centre_hz + half_width_hz <= scan.frequency_max_hz
@@ -492,7 +523,7 @@ def _off_source_rule(
     for k in off_scans:
         other = scans[k]
         centre = predicted_frequency_hz(source, rows, other)
-        width = wide_half_width_hz(rules, source, other)
+        width = wide_half_width_hz(rules, source, rows, other)
         _, inside = window_counts(other.frequency_hz, centre, width)
         present |= inside > 0
         counted += covered(other, centre, width)

@@ -6,11 +6,13 @@ the matrix (tests/api/test_roles_and_openapi.py) so that a change here is a visi
 
 from __future__ import annotations
 
+from confirm_service.roles import SIGNOFF_ROLES
+
 READ = ("viewer", "pipeline", "site", "coordinator", "admin")
 INGEST = ("pipeline",)
 REGISTER = ("coordinator",)
 PROMOTE = ("coordinator", "pipeline")
-SIGNOFF = ("coordinator", "site")
+SIGNOFF = SIGNOFF_ROLES
 COMMENT = ("coordinator", "site")
 DECIDE = ("coordinator",)
 RELEASE_HOLD = ("coordinator",)

@@ -175,23 +175,45 @@ def create_candidate(
 def promote_detection(
     session: Session, actor: Actor, detection_id: int, note: str | None
 ) -> Candidate:
-    """Explicit promotion of a detection by a coordinator or a pipeline."""
+    """Explicit promotion of a detection by a coordinator or a pipeline.
+
+    One signal, one candidate: a detection already linked to a candidate, or lying on the
+    predicted track of one (open or closed), is answered with that candidate (409), never a
+    second candidate.
+    """
     detection = session.get(Detection, detection_id)
     if detection is None:
         raise NotFound(f"no detection {detection_id}", [("detection_id", "no such detection")])
-    existing = session.execute(
+    observation = session.get(Observation, detection.observation_id)
+    assert observation is not None
+    linked = session.execute(
         select(CandidateDetection.candidate_id).where(
             CandidateDetection.detection_id == detection_id
         )
     ).first()
-    if existing:
-        raise Conflict(
-            f"detection {detection_id} already belongs to candidate {existing[0]}",
-            [("detection_id", f"already linked to candidate {existing[0]}")],
+    holder = session.get(Candidate, linked[0]) if linked else None
+    if holder is None and observation.target is not None:
+        holder = same_signal_candidate(
+            session, configured_protocol(session), detection, observation
         )
-    observation = session.get(Observation, detection.observation_id)
-    assert observation is not None
+    if holder is not None:
+        raise _already_followed(detection_id, holder, bool(linked))
     return create_candidate(session, actor, detection, observation, "explicit", note)
+
+
+def _already_followed(detection_id: int, holder: Candidate, linked: bool) -> Conflict:
+    """The answer to promoting a hit of an existing candidate: which one, and what to do."""
+    how = "is linked to" if linked else "lies on the predicted track of"
+    where = f"/api/v1/candidates/{holder.id}"
+    action = (
+        f"see {where}"
+        if holder.state == "open"
+        else f"it is {holder.state}, decided as recorded at {where}"
+    )
+    return Conflict(
+        f"detection {detection_id} {how} candidate {holder.id} ({action})",
+        [("detection_id", f"already followed as candidate {holder.id}: {action}")],
+    )
 
 
 def join_or_create(

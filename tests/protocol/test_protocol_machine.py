@@ -200,15 +200,16 @@ def test_deadline_expires_a_stage(default_protocol, sky_fixed, physics_context):
 def test_new_data_still_rejects_a_candidate_in_a_later_stage(
     default_protocol, injection_scenarios, physics_context
 ):
-    """A constant-drift candidate placed in the last stage is rejected by a stage-1 check."""
-    facts = injection_scenarios["const-brn-dorado"].facts
+    """A candidate seen in its off-source scans, placed in the last stage, is rejected by a
+    stage-1 check."""
+    facts = injection_scenarios["off-ald-dorado"].facts
     evaluation = evaluate(
         default_protocol,
         at_stage(facts, "review", facts.now_unix_s - HOUR_S),
         physics_context=physics_context,
     )
     assert evaluation.state == "rejected"
-    assert evaluation.reason_class == "drift_not_sky_fixed"
+    assert evaluation.reason_class == "failed_cadence"
     assert evaluation.stage == "review"
 
 

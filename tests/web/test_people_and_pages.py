@@ -238,7 +238,7 @@ def test_sites_followups_screening_and_audit_pages(app, client, auth, tokens):
     screening = viewer.get("/dashboard/screening")
     assert screening.status_code == 200
     text = page_text(screening)  # the first off-source scan: its 41 hits, all kept as evidence
-    assert "off_source_scan: 41" in text and "present_off_source" not in text
+    assert "off_source_scan: 41" in text and "present_off_source: 1" in text
     assert "zero_drift: 2" in text and "survived: 1" in text
     audit = viewer.get("/dashboard/audit?verify=1")
     assert audit.status_code == 200 and "✓ intact" in page_text(audit)

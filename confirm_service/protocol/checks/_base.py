@@ -1,5 +1,11 @@
 """Shared pieces of the protocol schema: strict pydantic base and unit-carrying field types.
 
+Drift limits may be absolute (``..._hz_s``) or normalised by the observed frequency
+(``..._nhz``: drift / frequency in nHz = 1e-9 s^-1, i.e. Hz/s per GHz, the way drift-rate
+searches state limits across a wide band; common practice, no source). Earth alone gives up to
+about 0.11 nHz from its rotation and 0.02 nHz from its orbit (a = omega^2 R = 0.034 m/s^2 and
+0.006 m/s^2 divided by c; IERS/WGS84 constants, orbital value from memory).
+
 Protocol files are typed TOML: a number where a number belongs, no strings for numbers, no
 booleans for numbers, no unknown keys. Integers are accepted where a float is expected.
 """
@@ -44,3 +50,29 @@ def format_hz_s(drift_hz_s: float) -> str:
 def format_hours(seconds: float) -> str:
     """A duration in hours for a sentence."""
     return f"{seconds / 3600.0:.1f} h"
+
+
+def drift_hz_s_from_nhz(drift_nhz: float, frequency_hz: float) -> float:
+    """A normalised drift (nHz, i.e. Hz/s per GHz) as an absolute drift (Hz/s) at frequency_hz."""
+    return drift_nhz * 1e-9 * frequency_hz
+
+
+def drift_limit_hz_s(
+    limit_hz_s: float | None, limit_nhz: float | None, frequency_hz: float
+) -> float:
+    """A drift limit given either in Hz/s or in nHz (Hz/s per GHz), in Hz/s at frequency_hz."""
+    if limit_hz_s is not None:
+        return limit_hz_s
+    if limit_nhz is None:
+        raise ValueError("a drift limit needs a value in Hz/s or in nHz")
+    return drift_hz_s_from_nhz(limit_nhz, frequency_hz)
+
+
+def exactly_one_drift_limit(model: BaseModel, name: str, required: bool = True) -> None:
+    """Refuse both ``<name>_hz_s`` and ``<name>_nhz`` (and, if required, neither)."""
+    absolute = getattr(model, f"{name}_hz_s")
+    normalised = getattr(model, f"{name}_nhz")
+    if absolute is not None and normalised is not None:
+        raise ValueError(f"give {name}_hz_s (Hz/s) or {name}_nhz (Hz/s per GHz), not both")
+    if required and absolute is None and normalised is None:
+        raise ValueError(f"give {name}_hz_s (Hz/s) or {name}_nhz (Hz/s per GHz)")

@@ -3,7 +3,12 @@
 Listed bands hold known human-made emitters (satellite navigation, radar, ISM...; each band's
 source is in the band file). A detection drifting at d Hz/s from f at time t sweeps
 f + d * (t' - t) for t' over its scan; any overlap with a listed band, widened by ``margin_hz``,
-fails. Partner reports on the track sweep f + d * [0, duration].
+counts. Partner reports on the track sweep f + d * [0, duration].
+
+What a hit in a listed band means is the protocol's ``interference_band_action``: ``"reject"``
+fails the check; ``"flag"`` makes it ``inconclusive``, so the candidate waits for a person (a
+band is a reason for suspicion, not proof: allocations are regional and not every channel of a
+band is in use at every site).
 """
 
 from __future__ import annotations
@@ -11,7 +16,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from confirm_service.protocol.checks._base import CheckParams, NonNegativeFloat, format_mhz
-from confirm_service.protocol.results import FAIL, PASS, CheckResult
+from confirm_service.protocol.results import FAIL, INCONCLUSIVE, PASS, CheckResult
 
 if TYPE_CHECKING:
     from confirm_service.protocol.bands import InterferenceBand
@@ -51,7 +56,8 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     for swept in ranges:
         hits = context.bands_overlapping(swept[1], swept[2], params.margin_hz)
         if hits:
-            return _inside(swept, list(hits), params)
+            flag = context.protocol.interference_band_action == "flag"
+            return _inside(swept, list(hits), params, flag)
     return CheckResult(
         KIND,
         PASS,
@@ -65,21 +71,26 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
 
 
 def _inside(
-    swept: tuple[str, float, float, float], hits: list[InterferenceBand], params: Params
+    swept: tuple[str, float, float, float],
+    hits: list[InterferenceBand],
+    params: Params,
+    flag: bool,
 ) -> CheckResult:
     label, low, high, frequency = swept
     band = hits[0]
+    review = " Flagged for a person to judge." if flag else ""
     return CheckResult(
         KIND,
-        FAIL,
+        INCONCLUSIVE if flag else FAIL,
         f"{label.capitalize()} sweeps {format_mhz(low)} to {format_mhz(high)}, inside "
         f"the listed band {band.name!r} ({format_mhz(band.frequency_min_hz)} to "
-        f"{format_mhz(band.frequency_max_hz)}; source: {band.source}).",
+        f"{format_mhz(band.frequency_max_hz)}; source: {band.source}).{review}",
         measured=frequency,
         tolerance=params.margin_hz,
         unit="Hz",
         details={
             "band": band.name,
+            "band_action": "flag" if flag else "reject",
             "band_source": band.source,
             "bands_hit": [b.name for b in hits],
             "swept_low_hz": low,
