@@ -13,19 +13,24 @@ from .test_candidate_flow import post_scenario
 def test_promoting_a_hit_on_a_closed_candidates_track_names_that_candidate(client, auth):
     candidates = post_scenario(client, auth)
     zero = min(
-        (c for c in candidates if c["reason_class"] == "zero_drift"),
+        (c for c in candidates if c["state"] == "rejected"),
         key=lambda c: c["id"],
     )
     reference = zero["detections"][0]
-    # the same zero-drift carrier in a later on-source scan of the target: on the track of the
-    # rejected candidate (same frequency; the Earth drift moves the track by < 1 Hz in 60 s)
+    # the same carrier in a later on-source scan of the target, on the track of the rejected
+    # candidate: its frequency moved on by its own drift over the 15 s between the two hits
     _, first = scenario_scans()[0]
     start = datetime.fromisoformat(first["start"]) + timedelta(seconds=60)
+    moved_hz = reference["frequency_hz"] + reference["drift_hz_s"] * (
+        60.0 - 45.0  # the demo posts this carrier 45 s into its scan
+    )
     scan = {
         **{k: v for k, v in first.items() if k != "detections"},
         "start": start.isoformat(),
         "cadence": None,
-        "detections": [{"frequency_hz": reference["frequency_hz"], "drift_hz_s": 0.0, "snr": 9.0}],
+        "detections": [
+            {"frequency_hz": moved_hz, "drift_hz_s": reference["drift_hz_s"], "snr": 9.0}
+        ],
     }
     created = client.post("/api/v1/observations", json=scan, headers=auth("pipeline"))
     assert created.status_code == 201, created.get_json()
