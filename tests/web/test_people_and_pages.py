@@ -179,14 +179,15 @@ def test_filters_survive_paging_and_export(app, client, auth, tokens, monkeypatc
     candidates = post_scenario(client, auth)
     monkeypatch.setattr(pages_overview, "LIST_LIMIT", 1)
     viewer = signed_in(app, tokens["viewer"])
-    first = viewer.get("/dashboard?state=rejected&q=kestrel")
+    first = viewer.get("/dashboard?target=Kestrel-7&q=kestrel")
     following = re.search(r'href="([^"]+)" rel="next"', first.text)
     assert following is not None
     link = following.group(1).replace("&amp;", "&")
-    assert "state=rejected" in link and "q=kestrel" in link and "after=" in link
-    seen = listed_ids(first) + listed_ids(viewer.get(link))
+    assert "target=Kestrel-7" in link and "q=kestrel" in link and "after=" in link
+    second = viewer.get(link)
+    assert listed_ids(first) + listed_ids(second) == sorted(c["id"] for c in candidates)
+    assert re.search(r'rel="next"', second.text) is None
     rejected = sorted(c["id"] for c in candidates if c["state"] == "rejected")
-    assert seen == rejected[:2]
 
     exported = viewer.get("/dashboard/candidates.csv?state=rejected")
     assert exported.mimetype == "text/csv"
@@ -234,7 +235,11 @@ def test_sites_followups_screening_and_audit_pages(app, client, auth, tokens):
     assert viewer.get("/dashboard/sites/NOPE").status_code == 404
     followups = page_text(viewer.get("/dashboard/follow-ups"))
     assert "request_followup" in followups or "No follow-up request" in followups
-    assert viewer.get("/dashboard/screening").status_code == 200
+    screening = viewer.get("/dashboard/screening")
+    assert screening.status_code == 200
+    text = page_text(screening)  # the first off-source scan: its 41 hits, all kept as evidence
+    assert "off_source_scan: 41" in text and "present_off_source" not in text
+    assert "zero_drift: 2" in text and "survived: 1" in text
     audit = viewer.get("/dashboard/audit?verify=1")
     assert audit.status_code == 200 and "✓ intact" in page_text(audit)
 
