@@ -31,7 +31,7 @@ def candidates_group() -> None:
 @click.option("--target", default=None)
 @click.option("--site", default=None)
 @click.option("--limit", default=100, show_default=True, type=click.IntRange(1, 1000))
-def list_candidates(state, stage, target, site, limit) -> None:  # type: ignore[no-untyped-def]
+def list_candidates(state, stage, target, site, limit) -> None:
     """One line per candidate."""
     query = CandidateQuery(state=state, stage=stage, target=target, site=site, limit=limit)
     database = open_database()

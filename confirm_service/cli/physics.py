@@ -26,10 +26,10 @@ def parse_time(value: str | None, field: str) -> datetime | None:
     return parsed
 
 
-def site_options(prefix: str, label: str):  # type: ignore[no-untyped-def]
+def site_options(prefix: str, label: str):
     dash = prefix.replace("_", "-")
 
-    def decorate(command):  # type: ignore[no-untyped-def]
+    def decorate(command):
         for option in reversed(
             [
                 click.option(f"--{dash}", f"{prefix}", default=None, help=f"{label}: site code"),
@@ -62,7 +62,7 @@ def site_options(prefix: str, label: str):  # type: ignore[no-untyped-def]
     return decorate
 
 
-def target_options(command):  # type: ignore[no-untyped-def]
+def target_options(command):
     command = click.option("--dec", type=float, default=None, help="ICRS declination, deg")(command)
     command = click.option("--ra", type=float, default=None, help="ICRS right ascension, deg")(
         command
@@ -70,15 +70,15 @@ def target_options(command):  # type: ignore[no-untyped-def]
     return click.option("--target", default=None, help="registered target name")(command)
 
 
-def _database_if_needed(*names: str | None):  # type: ignore[no-untyped-def]
+def _database_if_needed(*names: str | None):
     return open_database() if any(names) else None
 
 
-def _resolve(database, kind, *args):  # type: ignore[no-untyped-def]
+def _resolve(database, kind, *args):
     if database is None:
         if kind == "site":
-            return sky.resolve_site(None, None, *args)  # type: ignore[arg-type]
-        return sky.resolve_target(None, None, *args)  # type: ignore[arg-type]
+            return sky.resolve_site(None, None, *args)
+        return sky.resolve_target(None, None, *args)
     with database.read() as session:
         if kind == "site":
             return sky.resolve_site(session, *args)
@@ -103,7 +103,7 @@ def predict(
     target,
     ra,
     dec,
-    time_text,  # type: ignore[no-untyped-def]
+    time_text,
     observed_frequency_hz,
     observed_drift_hz_s,
     drift_uncertainty_hz_s,
@@ -122,12 +122,12 @@ def predict(
         _resolve(database, "site", site, site_lat, site_lon, site_height)
         if database
         else sky.resolve_site(None, None, site_lat, site_lon, site_height)
-    )  # type: ignore[arg-type]
+    )
     where = (
         _resolve(database, "target", target, ra, dec)
         if database and target
         else sky.resolve_target(None, None, ra, dec)
-    )  # type: ignore[arg-type]
+    )
     there = None
     if to_site or to_site_lat is not None:
         there = (
@@ -138,7 +138,7 @@ def predict(
                 None,
                 to_site_lat,
                 to_site_lon,
-                to_site_height,  # type: ignore[arg-type]
+                to_site_height,
                 "to_site",
             )
         )
@@ -194,7 +194,7 @@ def visibility(
     dec,
     from_text,
     days,
-    count,  # type: ignore[no-untyped-def]
+    count,
     as_json,
 ):
     """When a target is above a site's minimum elevation and clear of the Sun.
@@ -209,9 +209,9 @@ def visibility(
         _resolve(database, "target", target, ra, dec)
         if database and target
         else sky.resolve_target(None, None, ra, dec)
-    )  # type: ignore[arg-type]
+    )
     if site is None and site_lat is None:
-        with database.read() as session:  # type: ignore[union-attr]
+        with database.read() as session:
             found = sky.next_windows_everywhere(session, where, start, count)
         if as_json:
             click.echo(
@@ -242,7 +242,7 @@ def visibility(
         _resolve(database, "site", site, site_lat, site_lon, site_height)
         if database and site
         else sky.resolve_site(None, None, site_lat, site_lon, site_height)
-    )  # type: ignore[arg-type]
+    )
     result = sky.visibility(here, where, start, days)
     if as_json:
         click.echo(result.model_dump_json(indent=2))

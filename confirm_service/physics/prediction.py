@@ -116,7 +116,9 @@ def _kinematics(
     return cache.kinematics([TrackRequest(location, target)], pairs, unix_s)
 
 
-def _light_travel_s(location: EarthLocation, target: SkyCoord, unix_s: NDArray) -> NDArray:
+def _light_travel_s(
+    location: EarthLocation, target: SkyCoord, unix_s: NDArray[np.float64]
+) -> NDArray[np.float64]:
     times = time_from_unix_s(unix_s)
     delay = times.light_travel_time(target, kind="barycentric", location=location)
     return np.asarray(delay.to_value(u.s), dtype=np.float64)

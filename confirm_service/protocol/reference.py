@@ -36,9 +36,9 @@ from __future__ import annotations
 import math
 import threading
 from collections import OrderedDict
-from collections.abc import Hashable, Sequence
+from collections.abc import Callable, Hashable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Generic, TypeVar
 
 import numpy as np
 
@@ -121,14 +121,17 @@ class PointPrediction:
     radial_velocity_m_s: np.ndarray
 
 
-class _BoundedCache:
+_Value = TypeVar("_Value")
+
+
+class _BoundedCache(Generic[_Value]):
     """A small least-recently-used mapping."""
 
     def __init__(self, max_entries: int) -> None:
         self.max_entries = max_entries
-        self._items: OrderedDict[Hashable, Any] = OrderedDict()
+        self._items: OrderedDict[Hashable, _Value] = OrderedDict()
 
-    def get_or_make(self, key: Hashable, make: Any) -> Any:
+    def get_or_make(self, key: Hashable, make: Callable[[], _Value]) -> _Value:
         if key in self._items:
             self._items.move_to_end(key)
             return self._items[key]
@@ -163,10 +166,10 @@ class PhysicsContext:
 
     def __init__(self, cache: Any | None = None, max_entries: int = 4096) -> None:
         self.cache = cache if cache is not None else physics.TrackCache()
-        self._locations = _BoundedCache(max_entries)
-        self._targets = _BoundedCache(max_entries)
-        self._requests = _BoundedCache(max_entries)
-        self._distances = _BoundedCache(max_entries)
+        self._locations: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._targets: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._requests: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._distances: _BoundedCache[float] = _BoundedCache(max_entries)
         self._known_distances: dict[tuple[SiteFact, SiteFact], float] = {}
 
     def location(self, site: SiteFact) -> Any:

@@ -39,7 +39,7 @@ from confirm_service.schemas.candidates import (
 from confirm_service.schemas.queries import CandidateQuery
 
 
-def latest_checks_subquery():  # type: ignore[no-untyped-def]
+def latest_checks_subquery():
     return (
         select(CheckResult.candidate_id, CheckResult.kind, func.max(CheckResult.id).label("id"))
         .group_by(CheckResult.candidate_id, CheckResult.kind)
