@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from datetime import datetime
+from typing import Any
 
 import click
 
@@ -128,20 +129,7 @@ def predict(
         if database and target
         else sky.resolve_target(None, None, ra, dec)
     )
-    there = None
-    if to_site or to_site_lat is not None:
-        there = (
-            _resolve(database, "site", to_site, to_site_lat, to_site_lon, to_site_height, "to_site")
-            if database and to_site
-            else sky.resolve_site(
-                None,
-                None,
-                to_site_lat,
-                to_site_lon,
-                to_site_height,
-                "to_site",
-            )
-        )
+    there = _second_site(database, to_site, to_site_lat, to_site_lon, to_site_height)
     result = sky.predict(
         here,
         where,
@@ -155,6 +143,22 @@ def predict(
     if as_json:
         click.echo(result.model_dump_json(indent=2))
         return
+    _print_prediction(result)
+
+
+def _second_site(
+    database: Any, code: str | None, lat: float | None, lon: float | None, height: float | None
+) -> Any:
+    """The site a prediction is made for, by code or position; None when none is given."""
+    if not code and lat is None:
+        return None
+    if database and code:
+        return _resolve(database, "site", code, lat, lon, height, "to_site")
+    return sky.resolve_site(None, None, lat, lon, height, "to_site")
+
+
+def _print_prediction(result: Any) -> None:
+    """One aligned line per quantity the prediction holds, then its notes."""
     rows = [
         ("radial velocity (toward target)", result.radial_velocity_m_s, "m/s"),
         ("Earth drift at observed frequency", result.earth_drift_hz_s, "Hz/s"),
@@ -213,30 +217,7 @@ def visibility(
     if site is None and site_lat is None:
         with database.read() as session:
             found = sky.next_windows_everywhere(session, where, start, count)
-        if as_json:
-            click.echo(
-                json.dumps(
-                    {
-                        code: [
-                            {
-                                "start": w.start.isoformat(),
-                                "end": w.end.isoformat(),
-                                "max_elevation_deg": w.max_elevation_deg,
-                            }
-                            for w in ws
-                        ]
-                        for code, ws in found.items()
-                    },
-                    indent=2,
-                )
-            )
-            return
-        for code, windows in found.items():
-            for w in windows:
-                click.echo(
-                    f"{code:<8} {w.start:%Y-%m-%d %H:%M:%S} – {w.end:%Y-%m-%d %H:%M:%S} UTC"
-                    f"  peak {w.max_elevation_deg:5.1f} deg"
-                )
+        _print_windows_everywhere(found, as_json)
         return
     here = (
         _resolve(database, "site", site, site_lat, site_lon, site_height)
@@ -247,6 +228,35 @@ def visibility(
     if as_json:
         click.echo(result.model_dump_json(indent=2))
         return
+    _print_windows(result)
+
+
+def _print_windows_everywhere(found: dict[str, Any], as_json: bool) -> None:
+    """The next windows at every registered site, as JSON or one line per window."""
+    if as_json:
+        document = {
+            code: [
+                {
+                    "start": w.start.isoformat(),
+                    "end": w.end.isoformat(),
+                    "max_elevation_deg": w.max_elevation_deg,
+                }
+                for w in windows
+            ]
+            for code, windows in found.items()
+        }
+        click.echo(json.dumps(document, indent=2))
+        return
+    for code, windows in found.items():
+        for w in windows:
+            click.echo(
+                f"{code:<8} {w.start:%Y-%m-%d %H:%M:%S} – {w.end:%Y-%m-%d %H:%M:%S} UTC"
+                f"  peak {w.max_elevation_deg:5.1f} deg"
+            )
+
+
+def _print_windows(result: Any) -> None:
+    """A table of one site's windows (UTC, duration in hours, peak elevation), then notes."""
     click.echo(f"{'start (UTC)':<20} {'end (UTC)':<20} {'duration':>10} {'peak elevation':>15}")
     for w in result.windows:
         click.echo(
