@@ -12,6 +12,7 @@ from confirm_service.cli import main
 from confirm_service.cli.context import open_database
 from confirm_service.errors import Invalid
 from confirm_service.services import sky
+from confirm_service.timeutil import is_aware, parse_iso_time
 
 
 def parse_time(value: str | None, field: str) -> datetime | None:
@@ -19,10 +20,10 @@ def parse_time(value: str | None, field: str) -> datetime | None:
     if value is None:
         return None
     try:
-        parsed = datetime.fromisoformat(value)
+        parsed = parse_iso_time(value)
     except ValueError:
         raise Invalid("bad time", [(field, f"{value!r} is not ISO 8601")]) from None
-    if parsed.tzinfo is None:
+    if not is_aware(parsed):
         raise Invalid("naive time", [(field, "needs a time-zone offset, e.g. +00:00")])
     return parsed
 

@@ -53,7 +53,11 @@ class LoadedProtocol:
     band_set: BandSet = field(default_factory=lambda: BandSet(()), repr=False, compare=False)
 
 
-def model_of(protocol: LoadedProtocol | ProtocolModel) -> ProtocolModel:
+ProtocolLike = LoadedProtocol | ProtocolModel
+"""What evaluation accepts: a loaded protocol file, or a validated model on its own."""
+
+
+def model_of(protocol: ProtocolLike) -> ProtocolModel:
     """The validated model of a loaded protocol, or the model itself: the one lookup."""
     return protocol if isinstance(protocol, ProtocolModel) else protocol.model
 

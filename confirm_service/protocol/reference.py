@@ -50,6 +50,7 @@ from confirm_service.protocol.facts import (
     SiteFact,
     TargetFact,
 )
+from confirm_service.protocol.loader import ProtocolLike, model_of
 
 DEFAULT_FREQUENCY_UNCERTAINTY_CHANNELS = 1.0
 DEFAULT_DRIFT_UNCERTAINTY_RESOLUTIONS = 1.0
@@ -230,10 +231,10 @@ def default_physics_context() -> PhysicsContext:
     return context
 
 
-def _uncertainty_scales(protocol: Any | None) -> tuple[float, float]:
+def _uncertainty_scales(protocol: ProtocolLike | None) -> tuple[float, float]:
     if protocol is None:
         return DEFAULT_FREQUENCY_UNCERTAINTY_CHANNELS, DEFAULT_DRIFT_UNCERTAINTY_RESOLUTIONS
-    matching = getattr(protocol, "model", protocol).matching
+    matching = model_of(protocol).matching
     return (
         matching.reference_frequency_uncertainty_channels,
         matching.reference_drift_uncertainty_resolutions,
@@ -247,7 +248,7 @@ def predict_references(
     point_pair: np.ndarray,
     point_owner: np.ndarray,
     unix_s: np.ndarray,
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
 ) -> tuple[list[ReferenceSignal], PointPrediction]:
     """Reference signals of many candidates and the predicted track at many points.
 
@@ -335,7 +336,7 @@ def predict_from_reference(
     sites: Sequence[SiteFact],
     site_index: np.ndarray,
     unix_s: np.ndarray,
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
 ) -> tuple[ReferenceSignal, PointPrediction]:
     """The reference signal and the predicted track at points (sites[site_index], unix_s)."""
     times = np.asarray(unix_s, dtype=np.float64)
@@ -387,7 +388,7 @@ def _track(
 
 def reference_of(
     source: CandidateFacts | tuple[DetectionFact, ObservationFact, TargetFact],
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
     physics_context: PhysicsContext | None = None,
 ) -> ReferenceSignal:
     """The reference signal of a candidate (or of a detection, its scan and its target).
