@@ -27,6 +27,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("api", "web", "scheduler", "migrations"),
     ("app",),
     ("demo", "wsgi"),
+    ("synthetic",),
     ("cli",),
 )
 

@@ -41,6 +41,9 @@ def observation_model(observation: Observation, **extra: Any) -> ObservationOut:
         pipeline_run=observation.pipeline_run,
         detection_count=observation.detection_count,
         created_at=observation.created_at,
+        complete=observation.completed_at is not None,
+        completed_at=observation.completed_at,
+        completed_by=observation.completed_by,
         **extra,
     )
 

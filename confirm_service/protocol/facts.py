@@ -64,7 +64,8 @@ class ObservationFact:
     """One scan: where the telescope pointed, when, over which band, with which resolution.
 
     ``detections`` holds the scan's detections inside the search window the protocol asked for
-    (``search_window_hz``), not necessarily every hit of the scan.
+    (``search_window_hz``), not necessarily every hit of the scan. ``complete`` is False while
+    the scan may still receive hits: an open scan is evidence of presence, never of absence.
     """
 
     id: int
@@ -81,6 +82,7 @@ class ObservationFact:
     on_source: bool
     beam: str | None = None
     cadence: str | None = None
+    complete: bool = True
     detections: tuple[DetectionFact, ...] = ()
 
     @property
