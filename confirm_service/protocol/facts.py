@@ -13,10 +13,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-STATE_OPEN = "open"
-STATE_REJECTED = "rejected"
-STATE_CONFIRMED = "confirmed"
-STATE_WITHDRAWN = "withdrawn"
+from confirm_service.states import CandidateState
+
+STATE_OPEN = CandidateState.OPEN
+STATE_REJECTED = CandidateState.REJECTED
+STATE_CONFIRMED = CandidateState.CONFIRMED
+STATE_WITHDRAWN = CandidateState.WITHDRAWN
 CANDIDATE_STATES = (STATE_OPEN, STATE_REJECTED, STATE_CONFIRMED, STATE_WITHDRAWN)
 TERMINAL_STATES = (STATE_REJECTED, STATE_CONFIRMED, STATE_WITHDRAWN)
 

@@ -9,11 +9,13 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any, Literal
 
-PASS = "pass"
-FAIL = "fail"
-PENDING = "pending"
-NOT_APPLICABLE = "not_applicable"
-INCONCLUSIVE = "inconclusive"
+from confirm_service.states import CheckOutcome
+
+PASS = CheckOutcome.PASS
+FAIL = CheckOutcome.FAIL
+PENDING = CheckOutcome.PENDING
+NOT_APPLICABLE = CheckOutcome.NOT_APPLICABLE
+INCONCLUSIVE = CheckOutcome.INCONCLUSIVE
 """The data exist but cannot decide (partial coverage, ambiguous links, a flagged band): the
 stage machine holds the candidate for a person instead of deciding automatically."""
 OUTCOMES = (PASS, FAIL, PENDING, NOT_APPLICABLE, INCONCLUSIVE)
