@@ -7,6 +7,7 @@ from typing import Any
 from flask import Flask, request
 
 from confirm_service.api.common import authenticate_request
+from confirm_service.api.converters import install_converters
 from confirm_service.api.problems import install_problem_handlers
 from confirm_service.config import Settings, load_settings
 from confirm_service.db import Database
@@ -49,6 +50,7 @@ def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:
     app.extensions["confirm.settings"] = settings
     app.extensions["confirm.db"] = database
     install_problem_handlers(app)
+    install_converters(app)
 
     @app.before_request
     def _authenticate() -> Any:

@@ -4,9 +4,16 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, StrictBool, model_validator
+from pydantic import BaseModel, ConfigDict, Field, StrictBool, model_validator
 from pydantic_core import PydanticCustomError
 
+from confirm_service.schemas.bounds import (
+    DriftHzS,
+    DurationS,
+    FrequencyHz,
+    ObservationTime,
+    RowId,
+)
 from confirm_service.schemas.common import StrictModel, UtcIso
 
 Text = Annotated[str, Field(min_length=1, max_length=10_000)]
@@ -94,13 +101,13 @@ class ReportIn(StrictModel):
     """A partner site's report: it observed the target and did or did not see the signal."""
 
     site: Annotated[str, Field(min_length=1, max_length=32)]
-    observed_at: AwareDatetime
-    duration_s: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    observed_at: ObservationTime
+    duration_s: DurationS
     detected: StrictBool
-    frequency_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = None
-    drift_hz_s: Annotated[float, Field(allow_inf_nan=False)] | None = None
-    frequency_min_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)]
-    frequency_max_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    frequency_hz: FrequencyHz | None = None
+    drift_hz_s: DriftHzS | None = None
+    frequency_min_hz: FrequencyHz
+    frequency_max_hz: FrequencyHz
     notes: Annotated[str, Field(max_length=10_000)] | None = None
 
     @model_validator(mode="after")
@@ -159,7 +166,7 @@ class CandidateOut(CandidateSummary):
 
 
 class PromoteIn(StrictModel):
-    detection_id: Annotated[int, Field(ge=1)]
+    detection_id: RowId
     note: Text | None = None
 
 
