@@ -25,10 +25,10 @@ from typing import Any
 import numpy as np
 from sqlalchemy import insert
 
+from confirm_service.actor import SYSTEM
 from confirm_service.app import create_app
 from confirm_service.db import Database, upgrade_database
 from confirm_service.models import Detection
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 
 START = datetime.now(UTC) - timedelta(hours=2)

@@ -23,9 +23,9 @@ from sqlalchemy import insert, select
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.db import Database, upgrade_database
 from confirm_service.models import Candidate, Detection, Observation, Site, Target
+from confirm_service.protocol import default_physics_context as physics_context
 from confirm_service.protocol import match_detections
 from confirm_service.services import facts as factbook
-from confirm_service.services.candidates import physics_context
 from confirm_service.services.protocols import load_configured
 
 START = datetime(2026, 11, 1, tzinfo=UTC)

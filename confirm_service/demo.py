@@ -274,9 +274,9 @@ def scenario_scans() -> list[tuple[str, dict[str, Any]]]:
 
 def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     """Create a fresh SQLite database in ``folder`` and run the scenario through the API."""
+    from confirm_service.actor import SYSTEM
     from confirm_service.app import create_app
     from confirm_service.db import upgrade_database
-    from confirm_service.services.actor import SYSTEM
     from confirm_service.services.tokens import create_token
 
     folder.mkdir(parents=True, exist_ok=False)

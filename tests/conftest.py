@@ -121,7 +121,7 @@ def client(app: Any) -> Any:
 @pytest.fixture
 def tokens(db: Any) -> dict[str, str]:
     """A live token secret for every role."""
-    from confirm_service.services.actor import SYSTEM
+    from confirm_service.actor import SYSTEM
     from confirm_service.services.tokens import create_token
 
     secrets = {}

@@ -11,8 +11,8 @@ import time
 import urllib.request
 from pathlib import Path
 
+from confirm_service.actor import SYSTEM
 from confirm_service.db import Database, upgrade_database
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 
 ROOT = Path(__file__).resolve().parents[1]

@@ -16,6 +16,7 @@ from confirm_service.api.common import (
 )
 from confirm_service.api.spec import documented
 from confirm_service.audit import checkpoints, proofs
+from confirm_service.errors import NotFound
 from confirm_service.models import AuditCheckpoint
 from confirm_service.schemas.audit import (
     CheckpointIn,
@@ -29,7 +30,6 @@ from confirm_service.schemas.audit import (
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.queries import ListQuery
 from confirm_service.services import access
-from confirm_service.services.errors import NotFound
 
 bp = Blueprint("audit", __name__, url_prefix="/api/v1/audit")
 

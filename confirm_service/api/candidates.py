@@ -31,9 +31,8 @@ from confirm_service.schemas.candidates import (
 )
 from confirm_service.schemas.common import Page
 from confirm_service.schemas.queries import CandidateQuery
-from confirm_service.services import access
+from confirm_service.services import access, decisions, intake, reports
 from confirm_service.services import candidate_views as views
-from confirm_service.services import candidates as service
 
 bp = Blueprint("candidates", __name__, url_prefix="/api/v1/candidates")
 
@@ -84,9 +83,7 @@ def get_candidate(candidate_id: int) -> Response:
 def promote() -> Response:
     data = parse_body(PromoteIn)
     with database().write() as session:
-        candidate = service.promote_detection(
-            session, current_actor(), data.detection_id, data.note
-        )
+        candidate = intake.promote_detection(session, current_actor(), data.detection_id, data.note)
         body = views.detail(session, candidate.id)
     return json_response(body, 201)
 
@@ -103,7 +100,7 @@ def promote() -> Response:
 def withdraw(candidate_id: int) -> Response:
     data = parse_body(WithdrawIn)
     with database().write() as session:
-        service.withdraw(session, current_actor(), candidate_id, data.rationale)
+        decisions.withdraw(session, current_actor(), candidate_id, data.rationale)
     return _detail_after_commit(candidate_id)
 
 
@@ -120,7 +117,7 @@ def withdraw(candidate_id: int) -> Response:
 def comment(candidate_id: int) -> Response:
     data = parse_body(CommentIn)
     with database().write() as session:
-        row = service.add_comment(session, current_actor(), candidate_id, data.text)
+        row = decisions.add_comment(session, current_actor(), candidate_id, data.text)
         body = CommentOut.model_validate(row)
     return json_response(body, 201)
 
@@ -138,7 +135,7 @@ def comment(candidate_id: int) -> Response:
 def signoff(candidate_id: int) -> Response:
     data = parse_body(SignOffIn)
     with database().write() as session:
-        row = service.add_signoff(
+        row = decisions.add_signoff(
             session, current_actor(), candidate_id, data.approve, data.rationale, data.person
         )
         body = SignOffOut.model_validate(row)
@@ -157,7 +154,7 @@ def signoff(candidate_id: int) -> Response:
 def decision(candidate_id: int) -> Response:
     data = parse_body(DecisionIn)
     with database().write() as session:
-        service.decide(session, current_actor(), candidate_id, data.decision, data.rationale)
+        decisions.decide(session, current_actor(), candidate_id, data.decision, data.rationale)
     return _detail_after_commit(candidate_id)
 
 
@@ -173,7 +170,7 @@ def decision(candidate_id: int) -> Response:
 def release_hold(candidate_id: int) -> Response:
     data = parse_body(HoldReleaseIn)
     with database().write() as session:
-        service.release_hold(session, current_actor(), candidate_id, data.rationale)
+        decisions.release_hold(session, current_actor(), candidate_id, data.rationale)
     return _detail_after_commit(candidate_id)
 
 
@@ -206,6 +203,6 @@ def dossier(candidate_id: int) -> Response:
 def report(candidate_id: int) -> Response:
     data = parse_body(ReportIn)
     with database().write() as session:
-        row = service.add_report(session, current_actor(), candidate_id, data)
+        row = reports.add_report(session, current_actor(), candidate_id, data)
         body = views.report_out(row, data.site)
     return json_response(body, 201)

@@ -12,11 +12,11 @@ from typing import Any, TypeVar
 from flask import Response, current_app, g, json, request
 from pydantic import BaseModel, TypeAdapter, ValidationError
 
+from confirm_service.actor import Actor
 from confirm_service.api.problems import problem_response, validation_errors
 from confirm_service.db import Database
+from confirm_service.errors import ServiceError
 from confirm_service.services import access, tokens
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
 
 M = TypeVar("M")
 F = TypeVar("F", bound=Callable[..., Any])

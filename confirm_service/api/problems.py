@@ -8,7 +8,7 @@ from flask import Flask, Response, json
 from pydantic import ValidationError
 from werkzeug.exceptions import HTTPException
 
-from confirm_service.services.errors import ServiceError
+from confirm_service.errors import ServiceError
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
 

@@ -25,8 +25,8 @@ from confirm_service.audit.signing import (
     utc_timestamp,
 )
 from confirm_service.config import Settings
+from confirm_service.errors import Invalid
 from confirm_service.models import AuditCheckpoint
-from confirm_service.services.errors import Invalid
 from confirm_service.timeutil import utc_now
 
 TIMESTAMP_PRECISION = "microseconds"

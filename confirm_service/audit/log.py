@@ -13,10 +13,10 @@ from typing import Any
 from sqlalchemy import insert, select, update
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.canonical import canonical_json
 from confirm_service.audit.merkle import leaf_hash
 from confirm_service.models import AuditEntry, AuditHead
-from confirm_service.services.actor import Actor
 from confirm_service.timeutil import utc_now
 
 

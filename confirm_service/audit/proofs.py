@@ -29,8 +29,8 @@ from confirm_service.audit.checkpoints import (
 )
 from confirm_service.audit.merkle import consistency_proof
 from confirm_service.audit.tree_cache import builder_for_checkpoint
+from confirm_service.errors import Conflict, Invalid, NotFound
 from confirm_service.models import AuditCheckpoint
-from confirm_service.services.errors import Conflict, Invalid, NotFound
 
 INCLUSION_METHOD = (
     "leaf_hash = SHA-256(0x00 || UTF-8(leaf_input)) (RFC 6962 section 2.1); check audit_path_hex "

@@ -15,8 +15,8 @@ from sqlalchemy.orm import Session
 
 from confirm_service.audit.log import entry_bytes
 from confirm_service.audit.merkle import HASH_SIZE
+from confirm_service.errors import Conflict
 from confirm_service.models import AuditEntry, AuditHead
-from confirm_service.services.errors import Conflict
 
 DEFAULT_BATCH_SIZE = 2_000
 """Rows fetched per query while streaming."""

@@ -7,7 +7,7 @@ import sys
 import click
 
 from confirm_service.config import ConfigError
-from confirm_service.services.errors import ServiceError
+from confirm_service.errors import ServiceError
 
 
 class CommandGroup(click.Group):

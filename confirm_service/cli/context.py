@@ -5,10 +5,10 @@ from __future__ import annotations
 import getpass
 from functools import cache
 
+from confirm_service.actor import Actor
 from confirm_service.config import ConfigError, Settings, load_settings
 from confirm_service.db import Database, current_revision
 from confirm_service.services import runtime
-from confirm_service.services.actor import Actor
 
 
 @cache

@@ -9,8 +9,8 @@ import click
 
 from confirm_service.cli import main
 from confirm_service.cli.context import open_database
+from confirm_service.errors import Invalid
 from confirm_service.services import sky
-from confirm_service.services.errors import Invalid
 
 
 def parse_time(value: str | None, field: str) -> datetime | None:

@@ -65,7 +65,8 @@ def replay(path: Path, candidate_id: int | None, show_all: bool) -> None:
 @click.argument("path", type=click.Path(path_type=Path, exists=True))
 def adopt(path: Path) -> None:
     """(Admin) Put every open candidate, and new ones, under the protocol at PATH."""
-    from confirm_service.services.protocols import adopt_protocol, load_configured
+    from confirm_service.services.adoption import adopt_protocol
+    from confirm_service.services.protocols import load_configured
 
     protocol = load_configured(path)
     database = open_database()

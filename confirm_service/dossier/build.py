@@ -28,10 +28,10 @@ from confirm_service.models import (
     ProtocolRecord,
     Site,
 )
-from confirm_service.protocol import reference_of
-from confirm_service.services import candidates as candidate_service
+from confirm_service.protocol import default_physics_context, reference_of
 from confirm_service.services import facts as factbook
 from confirm_service.services.candidate_views import detail, get_candidate
+from confirm_service.services.protocols import protocol_of
 
 FORMAT = "confirm-service dossier 1"
 TRACK_SAMPLES = 9
@@ -43,8 +43,8 @@ def _utc(unix_s: float) -> str:
 
 def predicted_tracks(session: Session, candidate: Any) -> tuple[list[dict], list[dict]]:
     """Per related scan, the predicted track; per linked detection, observed vs predicted."""
-    protocol = candidate_service.protocol_of(session, candidate)
-    context = candidate_service.physics_context()
+    protocol = protocol_of(session, candidate)
+    context = default_physics_context()
     facts = factbook.candidate_facts(
         session, candidate, protocol, datetime.now(UTC).timestamp(), context
     )

@@ -7,12 +7,12 @@ from __future__ import annotations
 
 import logging
 
+from confirm_service.actor import Actor
 from confirm_service.audit.checkpoints import latest_checkpoint, take_checkpoint
 from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
-from confirm_service.services.actor import Actor
-from confirm_service.services.candidates import reevaluate_due
+from confirm_service.services.evaluation import reevaluate_due
 
 log = logging.getLogger(__name__)
 SCHEDULER = Actor(name="scheduler", role="system")

@@ -9,6 +9,7 @@ from sqlalchemy import and_, func, select
 from sqlalchemy.orm import Session
 
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
+from confirm_service.errors import NotFound
 from confirm_service.models import (
     Candidate,
     CandidateDetection,
@@ -36,7 +37,6 @@ from confirm_service.schemas.candidates import (
     TransitionOut,
 )
 from confirm_service.schemas.queries import CandidateQuery
-from confirm_service.services.errors import NotFound
 
 
 def latest_checks_subquery():  # type: ignore[no-untyped-def]

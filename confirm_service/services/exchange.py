@@ -80,11 +80,11 @@ from pydantic import TypeAdapter, ValidationError
 from sqlalchemy.exc import SQLAlchemyError
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.db import Database
+from confirm_service.errors import ServiceError
 from confirm_service.models import Detection, Observation
 from confirm_service.schemas.log import DetectionIn, ObservationIn
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
 from confirm_service.services.observations import (
     create_observation,
     detection_errors,

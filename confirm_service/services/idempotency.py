@@ -7,8 +7,8 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from confirm_service.errors import ServiceError
 from confirm_service.models import IdempotencyRecord
-from confirm_service.services.errors import ServiceError
 
 
 class KeyReused(ServiceError):

@@ -11,11 +11,11 @@ from typing import Any
 from sqlalchemy import func, select, text
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Invalid, NotFound, TooLarge
 from confirm_service.models import Detection, Observation, Site, Target
 from confirm_service.schemas.log import DETECTION_DEFAULTS, DetectionIn, ObservationIn
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Invalid, NotFound, TooLarge
 from confirm_service.services.sites import site_by_code, target_by_name
 from confirm_service.timeutil import utc_now
 
@@ -138,9 +138,9 @@ def _trigger_candidates(
     rows: Sequence[DetectionIn],
     ids: list[int],
 ) -> list[int]:
-    from confirm_service.services import candidates
+    from confirm_service.services import intake
 
-    return candidates.on_new_data(session, actor, observation, rows, ids)
+    return intake.on_new_data(session, actor, observation, rows, ids)
 
 
 def ingest_detections(

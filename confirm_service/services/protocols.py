@@ -14,12 +14,12 @@ from pathlib import Path
 from sqlalchemy import select, update
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.config import ConfigError
-from confirm_service.models import ProtocolRecord
+from confirm_service.errors import NotFound
+from confirm_service.models import Candidate, ProtocolRecord
 from confirm_service.protocol import LoadedProtocol, ProtocolError, load_protocol
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import NotFound
 
 _lock = threading.Lock()
 _by_hash: dict[tuple[str, str], LoadedProtocol] = {}
@@ -133,53 +133,17 @@ def active_record(session: Session) -> ProtocolRecord | None:
     ).scalar_one_or_none()
 
 
-def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> int:
-    """Make ``loaded`` govern new candidates and every open one; re-evaluate those now.
+def configured_protocol(session: Session | None = None) -> LoadedProtocol:
+    """The protocol for new candidates: one an admin adopted, else the configured file."""
+    from confirm_service.services import runtime
 
-    Open candidates restart at the new protocol's stage of the same name when it has one,
-    otherwise at its first stage. Returns how many open candidates moved.
-    """
-    from confirm_service.models import Candidate
-    from confirm_service.services import candidates as candidate_service
-    from confirm_service.timeutil import utc_now
+    if session is not None:
+        adopted = active_record(session)
+        if adopted is not None:
+            return protocol_for(session, adopted.sha256, adopted.bands_sha256)
+    return load_configured(runtime.settings().protocol_file)
 
-    row = ensure_recorded(session, actor, loaded)
-    mark_active(session, row)
-    names = loaded.model.stage_names()
-    now = utc_now()
-    open_candidates = session.execute(
-        select(Candidate).where(Candidate.state == "open").order_by(Candidate.id).with_for_update()
-    ).scalars()
-    moved = 0
-    for candidate in list(open_candidates):
-        stage = candidate.stage if candidate.stage in names else names[0]
-        candidate_service.add_history(
-            session,
-            actor,
-            candidate.id,
-            (candidate.stage, stage),
-            ("open", "open"),
-            f"protocol {loaded.name} {loaded.version} adopted by an administrator",
-            "protocol_change",
-            now,
-        )
-        if stage != candidate.stage:
-            candidate.stage_entered_at = now
-        candidate.stage = stage
-        candidate.protocol_name = loaded.name
-        candidate.protocol_sha256 = loaded.content_sha256
-        candidate.bands_sha256 = loaded.bands_sha256
-        candidate_service.reevaluate(session, actor, candidate, now)
-        moved += 1
-    record(
-        session,
-        actor,
-        "protocol.adopted",
-        f"protocol:{loaded.name}",
-        {
-            "sha256": loaded.content_sha256,
-            "bands_sha256": loaded.bands_sha256,
-            "open_candidates": moved,
-        },
-    )
-    return moved
+
+def protocol_of(session: Session, candidate: Candidate) -> LoadedProtocol:
+    """The protocol a candidate was created under (or adopted for it), by content hash."""
+    return protocol_for(session, candidate.protocol_sha256, candidate.bands_sha256)

@@ -15,8 +15,8 @@ from sqlalchemy.orm import Session
 
 from confirm_service.models import Candidate
 from confirm_service.protocol import LoadedProtocol, evaluate, initial_stage
+from confirm_service.protocol import default_physics_context as physics_context
 from confirm_service.services import facts as factbook
-from confirm_service.services.candidates import physics_context
 from confirm_service.timeutil import utc_now
 
 

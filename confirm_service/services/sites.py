@@ -8,11 +8,11 @@ from sqlalchemy import select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, NotFound
 from confirm_service.models import Site, Target
 from confirm_service.schemas.log import SiteIn, SiteUpdate, TargetIn, TargetUpdate
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Conflict, NotFound
 
 
 def _audit_values(model: Any) -> dict[str, Any]:

@@ -15,10 +15,10 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from confirm_service import physics
+from confirm_service.errors import Invalid
 from confirm_service.physics import PhysicsInputError
 from confirm_service.schemas.predictions import PredictionResult, VisibilityResult
 from confirm_service.services import predictions
-from confirm_service.services.errors import Invalid
 from confirm_service.services.sites import all_sites, site_by_code, target_by_name
 
 

@@ -9,10 +9,10 @@ from datetime import timedelta
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.errors import Invalid, NotFound
 from confirm_service.models import ROLES, ApiToken
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import Invalid, NotFound
 from confirm_service.timeutil import utc_now
 
 TOKEN_PREFIX = "cs1_"

@@ -18,11 +18,11 @@ from typing import Any, TypeVar
 
 from flask import Flask, abort, current_app, g, request, session
 
+from confirm_service.actor import Actor
 from confirm_service.config import ConfigError, Settings
 from confirm_service.db import Database
 from confirm_service.models import ApiToken
 from confirm_service.services import access, tokens
-from confirm_service.services.actor import Actor
 
 F = TypeVar("F", bound=Callable[..., Any])
 

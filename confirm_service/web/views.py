@@ -31,9 +31,11 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 from werkzeug.exceptions import HTTPException
 
+from confirm_service.actor import Actor
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.db import Database
 from confirm_service.dossier.plots import site_residual_panels
+from confirm_service.errors import ServiceError
 from confirm_service.models import Candidate, Target
 from confirm_service.schemas.candidates import (
     CandidateOut,
@@ -44,9 +46,8 @@ from confirm_service.schemas.candidates import (
 )
 from confirm_service.schemas.queries import CandidateQuery
 from confirm_service.services import candidate_views
-from confirm_service.services import candidates as candidate_service
-from confirm_service.services.actor import Actor
-from confirm_service.services.errors import ServiceError
+from confirm_service.services import decisions as decision_service
+from confirm_service.services.protocols import protocol_of
 from confirm_service.web import auth
 
 bp = Blueprint(
@@ -316,7 +317,7 @@ def _signoff_requirements(
     Display only: the protocol machine decides; this mirrors its rule (distinct persons of the
     rule's role whose latest sign-off after the stage was entered approves).
     """
-    protocol = candidate_service.protocol_of(session, candidate)
+    protocol = protocol_of(session, candidate)
     stage = next((s for s in protocol.model.stages if s.name == candidate.stage), None)
     if stage is None:
         return "", []
@@ -477,7 +478,7 @@ def signoff(candidate_id: int) -> Any:
     validated = _validate("signoff", SignOffIn, data, typed, refused)
 
     def act(session: Session, actor: Actor, body: SignOffIn) -> str:
-        row = candidate_service.add_signoff(
+        row = decision_service.add_signoff(
             session, actor, candidate_id, body.approve, body.rationale
         )
         verdict = "approval" if row.approve else "objection"
@@ -494,7 +495,7 @@ def decision(candidate_id: int) -> Any:
     validated = _validate("decision", DecisionIn, typed, typed, {})
 
     def act(session: Session, actor: Actor, body: DecisionIn) -> str:
-        candidate_service.decide(session, actor, candidate_id, body.decision, body.rationale)
+        decision_service.decide(session, actor, candidate_id, body.decision, body.rationale)
         return f"The candidate is now {body.decision}."
 
     return _submit(candidate_id, "decision", validated, act)
@@ -508,7 +509,7 @@ def release_hold(candidate_id: int) -> Any:
     validated = _validate("hold", HoldReleaseIn, typed, typed, {})
 
     def act(session: Session, actor: Actor, body: HoldReleaseIn) -> str:
-        candidate_service.release_hold(session, actor, candidate_id, body.rationale)
+        decision_service.release_hold(session, actor, candidate_id, body.rationale)
         return "The hold was released and the candidate re-evaluated."
 
     return _submit(candidate_id, "hold", validated, act)
@@ -521,7 +522,7 @@ def comment(candidate_id: int) -> Any:
     validated = _validate("comment", CommentIn, typed, typed, {})
 
     def act(session: Session, actor: Actor, body: CommentIn) -> str:
-        candidate_service.add_comment(session, actor, candidate_id, body.text)
+        decision_service.add_comment(session, actor, candidate_id, body.text)
         return "Your comment was added."
 
     return _submit(candidate_id, "comment", validated, act)

@@ -83,7 +83,7 @@ def test_route_enforces_roles(client, auth, method, rule):
 
 
 def test_revoked_token_is_refused(client, db, tokens, auth):
-    from confirm_service.services.actor import SYSTEM
+    from confirm_service.actor import SYSTEM
     from confirm_service.services.tokens import authenticate, revoke_token
 
     assert client.get("/api/v1/sites", headers=auth("viewer")).status_code == 200

@@ -21,10 +21,10 @@ from cryptography.hazmat.primitives import serialization
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
 from sqlalchemy import text
 
+from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit import checkpoints, log, store
 from confirm_service.audit.verify import verify_log
-from confirm_service.services.actor import SYSTEM, Actor
-from confirm_service.services.errors import Invalid
+from confirm_service.errors import Invalid
 
 # SHA-256 of the empty string, the RFC 6962 empty-tree root (FIPS 180-4 test value, from memory).
 EMPTY_SHA256_HEX = "e3b0c44298fc1c149afbf4c8996fb92427ae41e4649b934ca495991b7852b855"

@@ -27,6 +27,7 @@ from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 from sqlalchemy import text
 from sqlalchemy.engine import make_url
 
+from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit import checkpoints, log
 from confirm_service.audit.verify import verify_log
 from confirm_service.cli import main
@@ -34,7 +35,6 @@ from confirm_service.cli.context import settings as cli_settings
 from confirm_service.config import load_settings
 from confirm_service.db import Database
 from confirm_service.models import AuditCheckpoint, AuditEntry, AuditHead
-from confirm_service.services.actor import SYSTEM, Actor
 
 T0 = datetime(2031, 4, 5, 6, 0, tzinfo=UTC)  # invented moment
 ANALYST = Actor(name="analyst-q", role="coordinator")  # invented person

@@ -27,6 +27,7 @@ import pytest
 from click.testing import CliRunner
 from sqlalchemy import func, select
 
+from confirm_service.actor import SYSTEM
 from confirm_service.cli import context as cli_context
 from confirm_service.cli import main
 from confirm_service.cli.context import cli_actor
@@ -34,7 +35,6 @@ from confirm_service.db import Database
 from confirm_service.models import AuditEntry, Detection, Observation
 from confirm_service.schemas.log import SiteIn, TargetIn
 from confirm_service.services import exchange, runtime
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.sites import create_site, create_target
 from tests.factories import SITE_NORTH, SITE_SOUTH, TARGET
 

@@ -11,10 +11,10 @@ import threading
 
 from sqlalchemy import func, select
 
+from confirm_service.actor import SYSTEM
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.demo import SITES, TARGETS, scenario_scans
 from confirm_service.models import AuditEntry, CheckResult, FollowUpRequest, StageTransition
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 
 RATIONALE = "Reviewed the checks and the linked detections; consistent with a sky-fixed source."
@@ -85,7 +85,7 @@ def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
 
     # evaluation is idempotent: re-evaluating with no new data writes nothing
     from confirm_service.models import Candidate
-    from confirm_service.services.candidates import reevaluate
+    from confirm_service.services.evaluation import reevaluate
 
     results, entries = count(db, CheckResult), count(db, AuditEntry)
     with db.write() as session:

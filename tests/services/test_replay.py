@@ -12,7 +12,8 @@ from confirm_service.cli import main
 from confirm_service.cli.context import settings
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.models import AuditEntry, CheckResult
-from confirm_service.services.protocols import adopt_protocol, load_configured
+from confirm_service.services.adoption import adopt_protocol
+from confirm_service.services.protocols import load_configured
 from confirm_service.services.replay import replay
 from tests.services.test_candidate_flow import post_scenario
 
@@ -80,7 +81,7 @@ def test_replay_is_read_only_deterministic_and_selective(client, auth, db, tmp_p
 def test_admin_adoption_re_evaluates_open_candidates(client, auth, db, tmp_path):
     candidates = post_scenario(client, auth)
     sky = next(c for c in candidates if c["stage"] == "review")
-    from confirm_service.services.actor import SYSTEM
+    from confirm_service.actor import SYSTEM
 
     with db.write() as session:
         moved = adopt_protocol(session, SYSTEM, load_configured(tightened_protocol(tmp_path)))

@@ -5,8 +5,8 @@ from __future__ import annotations
 
 from datetime import timedelta
 
+from confirm_service.actor import SYSTEM
 from confirm_service.demo import SITES, TARGETS, SkyFixedSignal, scenario_scans
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 
 

@@ -18,8 +18,8 @@ from urllib.parse import urlsplit
 import pytest
 from werkzeug.serving import make_server
 
+from confirm_service.actor import SYSTEM
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import create_token
 from tests.services.test_candidate_flow import post_scenario
 

@@ -15,9 +15,9 @@ from typing import Any
 import pytest
 from sqlalchemy import func, select
 
+from confirm_service.actor import SYSTEM
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.models import AuditEntry, Comment, SignOff
-from confirm_service.services.actor import SYSTEM
 from confirm_service.services.tokens import authenticate, create_token, revoke_token
 from tests.services.test_candidate_flow import post_scenario
 

@@ -1,0 +1,256 @@
+"""Candidates from hits: the same-signal test, creation under the configured protocol, and
+explicit promotion by a person or a pipeline.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session
+
+from confirm_service.actor import Actor
+from confirm_service.audit.log import record
+from confirm_service.errors import Conflict, Invalid, NotFound
+from confirm_service.models import Candidate, CandidateDetection, Detection, Observation
+from confirm_service.protocol import (
+    LoadedProtocol,
+    default_physics_context,
+    initial_stage,
+    intake_decision,
+    reference_of,
+    search_windows_hz,
+    stage_entry_actions,
+)
+from confirm_service.schemas.log import DetectionIn
+from confirm_service.services import facts as factbook
+from confirm_service.services import protocols
+from confirm_service.services.evaluation import candidates_bearing_on, record_actions, reevaluate
+from confirm_service.services.history import add_history
+from confirm_service.services.protocols import configured_protocol, protocol_of
+from confirm_service.timeutil import utc_now
+
+SAME_SIGNAL_SEARCH_HZ = 100_000.0
+"""Candidates whose barycentric frequency lies within this of a new hit are tested as the same
+signal (a residual drift of 1 Hz/s moves a signal 86 kHz in a day)."""
+
+
+def _could_be_same_signal(
+    candidate: Candidate, barycentric_frequency_hz: float, unix_s: float
+) -> bool:
+    """Coarse test from stored columns: the candidate's barycentric track passes near the hit.
+
+    Allows 1 kHz plus 0.05 Hz/s of drift error per second of gap; the exact predicted window is
+    computed only for candidates that pass.
+    """
+    gap_s = unix_s - candidate.reference_unix_s
+    expected = candidate.barycentric_frequency_hz + candidate.residual_drift_hz_s * gap_s
+    return abs(expected - barycentric_frequency_hz) <= 1_000.0 + 0.05 * abs(gap_s)
+
+
+def _same_signal_candidate(
+    session: Session,
+    protocol: LoadedProtocol,
+    detection: Detection,
+    observation: Observation,
+) -> Candidate | None:
+    """An existing candidate of the same target whose predicted track this detection lies on."""
+    target = observation.target
+    if target is None:
+        return None
+    detection_f = factbook.detection_fact(detection)
+    observation_f = factbook.observation_fact(observation)
+    target_f = factbook.target_fact(target)
+    signal = reference_of(
+        (detection_f, observation_f, target_f), protocol.model, default_physics_context()
+    )
+    nearby = session.execute(
+        select(Candidate).where(
+            Candidate.target_id == target.id,
+            Candidate.barycentric_frequency_hz.between(
+                signal.barycentric_frequency_hz - SAME_SIGNAL_SEARCH_HZ,
+                signal.barycentric_frequency_hz + SAME_SIGNAL_SEARCH_HZ,
+            ),
+        )
+    ).scalars()
+    for candidate in nearby:
+        if not _could_be_same_signal(candidate, signal.barycentric_frequency_hz, signal.unix_s):
+            continue
+        reference, reference_observation, _ = factbook.reference_parts(
+            session, candidate.reference_detection_id
+        )
+        if reference_observation.id == observation.id:
+            continue  # one signal gives one hit per scan: another hit of the same scan differs
+        windows = search_windows_hz(
+            protocol_of(session, candidate),
+            factbook.detection_fact(reference),
+            factbook.observation_fact(reference_observation),
+            target_f,
+            [observation_f],
+            default_physics_context(),
+        )
+        low, high = windows[observation.id]
+        if low <= detection.frequency_hz <= high:
+            return candidate
+    return None
+
+
+def create_candidate(
+    session: Session,
+    actor: Actor,
+    detection: Detection,
+    observation: Observation,
+    origin: str,
+    note: str | None = None,
+) -> Candidate:
+    """A new candidate from ``detection`` under the configured protocol, evaluated at once."""
+    if observation.target is None:
+        raise Invalid(
+            "the detection's scan has no target",
+            [("detection_id", "only detections from scans of a registered target can be followed")],
+        )
+    protocol = configured_protocol(session)
+    protocols.ensure_recorded(session, actor, protocol)
+    signal = reference_of(
+        (
+            factbook.detection_fact(detection),
+            factbook.observation_fact(observation),
+            factbook.target_fact(observation.target),
+        ),
+        protocol.model,
+        default_physics_context(),
+    )
+    now = utc_now()
+    stage = initial_stage(protocol)
+    candidate = Candidate(
+        reference_detection_id=detection.id,
+        target_id=observation.target_id,
+        site_id=observation.site_id,
+        protocol_name=protocol.name,
+        protocol_sha256=protocol.content_sha256,
+        bands_sha256=protocol.bands_sha256,
+        state="open",
+        stage=stage,
+        stage_entered_at=now,
+        origin=origin,
+        reference_unix_s=signal.unix_s,
+        barycentric_frequency_hz=signal.barycentric_frequency_hz,
+        residual_drift_hz_s=signal.residual_drift_hz_s,
+        evaluation_count=0,
+    )
+    session.add(candidate)
+    session.flush()
+    session.add(
+        CandidateDetection(
+            candidate_id=candidate.id,
+            detection_id=detection.id,
+            observation_id=observation.id,
+            role="reference",
+        )
+    )
+    reason = f"created ({origin})" + (f": {note}" if note else "")
+    add_history(session, actor, candidate.id, (None, stage), (None, "open"), reason, at=now)
+    record(
+        session,
+        actor,
+        "candidate.created",
+        f"candidate:{candidate.id}",
+        {
+            "detection_id": detection.id,
+            "origin": origin,
+            "note": note,
+            "protocol": protocol.name,
+            "protocol_sha256": protocol.content_sha256,
+            "bands_sha256": protocol.bands_sha256,
+            "barycentric_frequency_hz": signal.barycentric_frequency_hz,
+            "residual_drift_hz_s": signal.residual_drift_hz_s,
+            "reference_unix_s": signal.unix_s,
+            "stage": stage,
+        },
+    )
+    entered = stage_entry_actions(protocol, stage, candidate.id, now.timestamp(), signal)
+    record_actions(session, actor, candidate, entered)
+    reevaluate(session, actor, candidate, now)
+    return candidate
+
+
+def promote_detection(
+    session: Session, actor: Actor, detection_id: int, note: str | None
+) -> Candidate:
+    """Explicit promotion of a detection by a coordinator or a pipeline."""
+    detection = session.get(Detection, detection_id)
+    if detection is None:
+        raise NotFound(f"no detection {detection_id}", [("detection_id", "no such detection")])
+    existing = session.execute(
+        select(CandidateDetection.candidate_id).where(
+            CandidateDetection.detection_id == detection_id
+        )
+    ).first()
+    if existing:
+        raise Conflict(
+            f"detection {detection_id} already belongs to candidate {existing[0]}",
+            [("detection_id", f"already linked to candidate {existing[0]}")],
+        )
+    observation = session.get(Observation, detection.observation_id)
+    assert observation is not None
+    return create_candidate(session, actor, detection, observation, "explicit", note)
+
+
+def _prefilter(protocol: LoadedProtocol, rows: Sequence[DetectionIn]) -> list[int]:
+    """Indexes of rows the intake rule could accept, or that the pipeline flagged."""
+    rule = protocol.model.intake
+    keep = []
+    for index, row in enumerate(rows):
+        passes = row["snr"] >= rule.min_snr and abs(row["drift_hz_s"]) <= rule.max_abs_drift_hz_s
+        if passes or row.get("candidate", False):
+            keep.append(index)
+    return keep
+
+
+def _intake(
+    session: Session,
+    actor: Actor,
+    observation: Observation,
+    rows: Sequence[DetectionIn],
+    ids: list[int],
+) -> list[int]:
+    if observation.target is None or not rows:
+        return []
+    protocol = configured_protocol(session)
+    chosen = _prefilter(protocol, rows)
+    if not chosen:
+        return []
+    observation_f = factbook.observation_fact(observation)
+    target_f = factbook.target_fact(observation.target)
+    created: list[int] = []
+    for index in chosen:
+        detection = session.get(Detection, ids[index])
+        assert detection is not None
+        flagged = bool(rows[index].get("candidate", False))
+        if not flagged:
+            decision = intake_decision(
+                protocol, factbook.detection_fact(detection), observation_f, target_f
+            )
+            if not decision.promote:
+                continue
+        if _same_signal_candidate(session, protocol, detection, observation) is not None:
+            continue
+        origin = "pipeline_flag" if flagged else "intake_rule"
+        created.append(create_candidate(session, actor, detection, observation, origin).id)
+    return created
+
+
+def on_new_data(
+    session: Session,
+    actor: Actor,
+    observation: Observation,
+    rows: Sequence[DetectionIn],
+    ids: list[int],
+) -> list[int]:
+    """Intake of new detections, then re-evaluation of every candidate the scan bears on."""
+    created = _intake(session, actor, observation, rows, ids)
+    now = utc_now()
+    for candidate in candidates_bearing_on(session, observation):
+        if candidate.id not in created:
+            reevaluate(session, actor, candidate, now)
+    return created
