@@ -27,7 +27,7 @@ DEFAULT_PROTOCOL_FILE = (
 """The shipped default protocol: from the source tree, or where a wheel install put it."""
 
 
-_OPTIONAL_PATHS = ("signing_key_file", "ephemeris_file")
+_OPTIONAL_PATHS = ("signing_key_file", "ephemeris_file", "contacts_file")
 
 
 class ConfigError(Exception):
@@ -49,6 +49,19 @@ class Settings:
     service_origin: str = "confirm-service"
     checkpoint_interval_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 3600.0
     secret_key: str = field(default="", repr=False)
+    scheduler_tick_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 60.0
+    scheduler_standby_poll_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 5.0
+    followup_lead_time_s: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 7200.0
+    delivery_timeout_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 10.0
+    delivery_max_attempts: Annotated[int, Field(gt=0)] = 6
+    delivery_backoff_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 60.0
+    delivery_backoff_max_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 3600.0
+    public_url: str = "http://127.0.0.1:8080"
+    site_code: str = ""
+    smtp_host: str = ""
+    smtp_port: Annotated[int, Field(gt=0, lt=65536)] = 25
+    mail_from: str = "confirm-service@localhost"
+    contacts_file: Path | None = None
 
     @property
     def is_sqlite(self) -> bool:

@@ -13,7 +13,8 @@ import click
 
 from confirm_service.cli import main
 from confirm_service.cli.context import cli_actor, open_database, settings
-from confirm_service.services import exchange as service
+from confirm_service.services.exchange import columns, export, importer
+from confirm_service.timeutil import parse_aware_time
 
 FORMAT_HELP = "csv, jsonl or votable; by default from the extension (.csv, .jsonl, .vot or .xml)."
 
@@ -29,14 +30,14 @@ class AwareTime(click.ParamType):
         if isinstance(value, datetime):
             return value
         try:
-            return service.parse_aware_time(str(value))
+            return parse_aware_time(str(value))
         except ValueError as exc:
             self.fail(f"{exc}; give e.g. 2026-11-20T03:00:00+00:00", param, ctx)
 
 
 @main.command("import")
 @click.argument("file", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("--format", "file_format", type=click.Choice(service.FORMATS), help=FORMAT_HELP)
+@click.option("--format", "file_format", type=click.Choice(columns.FORMATS), help=FORMAT_HELP)
 @click.option(
     "--max-reasons",
     type=click.IntRange(min=0),
@@ -55,8 +56,8 @@ def import_command(file: Path, file_format: str | None, max_reasons: int) -> Non
     failure; observations before it stay committed).
     """
     try:
-        fmt = service.format_of(file, file_format)
-    except service.UnusableInput as exc:
+        fmt = columns.format_of(file, file_format)
+    except columns.UnusableInput as exc:
         click.echo(f"error: {exc}", err=True)
         sys.exit(2)
     config = settings()
@@ -72,7 +73,7 @@ def import_command(file: Path, file_format: str | None, max_reasons: int) -> Non
                     bar.update(position - done[0])
                     done[0] = position
 
-            summary = service.import_file(
+            summary = importer.import_file(
                 database,
                 cli_actor(),
                 file,
@@ -107,7 +108,7 @@ def _size_of(path: Path) -> int:
     type=click.Path(dir_okay=False, path_type=Path),
     help="File to write (replaced only once complete).",
 )
-@click.option("--format", "file_format", type=click.Choice(service.FORMATS), help=FORMAT_HELP)
+@click.option("--format", "file_format", type=click.Choice(columns.FORMATS), help=FORMAT_HELP)
 @click.option("--site", default=None, help="Only observations at this site code.")
 @click.option("--target", default=None, help="Only observations of this target name.")
 @click.option("--from", "start_from", type=AwareTime(), help="Start at or after (with offset).")
@@ -127,10 +128,10 @@ def export_command(
     columns. The summary goes to stdout.
     """
     try:
-        fmt = service.format_of(out, file_format)
-    except service.UnusableInput as exc:
+        fmt = columns.format_of(out, file_format)
+    except columns.UnusableInput as exc:
         raise click.UsageError(str(exc)) from None
-    wanted = service.ExportFilter(site, target, start_from, start_to)
+    wanted = export.ExportFilter(site, target, start_from, start_to)
     database = open_database()
 
     def note(observations: int) -> None:
@@ -138,7 +139,7 @@ def export_command(
             click.echo(f"exported {observations} observations so far", err=True)
 
     try:
-        summary = service.export_file(database, out, fmt, wanted, progress=note)
+        summary = export.export_file(database, out, fmt, wanted, progress=note)
     except OSError as exc:
         click.echo(f"error: cannot write {out}: {exc.strerror or exc}", err=True)
         sys.exit(2)

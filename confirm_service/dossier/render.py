@@ -120,7 +120,6 @@ SHA-256 <code>{dossier["protocol"]["sha256"]}</code>.</p>
 <code>{checkpoint["root_hash_hex"]}</code>, signed {html.escape(checkpoint["timestamp"])} with
 Ed25519 key <code>{html.escape(audit["key_id"])}</code>). Check offline with
 <code>confirm-service dossier verify DIR --public-key KEY.pem</code>.</p>{entries}
-<p class="caution">{html.escape(dossier["caution"])}</p>
 </body></html>
 """
 

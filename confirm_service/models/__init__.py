@@ -12,8 +12,15 @@ from confirm_service.models.candidates import (
     SignOff,
     StageTransition,
 )
-from confirm_service.models.followups import FollowUpReport, FollowUpRequest
+from confirm_service.models.followups import (
+    FollowUpReport,
+    FollowUpRequest,
+    OutboundMessage,
+    PartnerSecret,
+    ReceivedMessage,
+)
 from confirm_service.models.log import Detection, Observation, Site, Target
+from confirm_service.models.scheduler import SchedulerJob, SchedulerRun
 
 __all__ = [
     "ROLES",
@@ -31,7 +38,12 @@ __all__ = [
     "FollowUpRequest",
     "IdempotencyRecord",
     "Observation",
+    "OutboundMessage",
+    "PartnerSecret",
     "ProtocolRecord",
+    "ReceivedMessage",
+    "SchedulerJob",
+    "SchedulerRun",
     "SignOff",
     "Site",
     "StageTransition",

@@ -111,13 +111,11 @@ class RadialVelocityTrack:
     def radial_velocity_and_acceleration(
         self, unix_s: ArrayLike
     ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-        times = np.asarray(unix_s, dtype=np.float64)
-        position = (times - self.start_unix_s) / self.spacing_s
+        """Radial velocity (m/s) and acceleration (m/s^2) at POSIX seconds inside the span."""
         pieces = self.coefficients.shape[0]
-        _require_inside(position, pieces)
-        index = np.clip(np.floor(position).astype(np.intp), 0, pieces - 1)
-        value, slope = _horner(self.coefficients, index, position - index)
-        return value, slope / self.spacing_s
+        return evaluate_pieces(
+            self.coefficients, 0, pieces, self.start_unix_s, self.spacing_s, unix_s
+        )
 
     def earth_drift_hz_s(
         self, unix_s: ArrayLike, observed_frequency_hz: ArrayLike
@@ -155,11 +153,30 @@ def _fit_operator(knots: int) -> NDArray[np.float64]:
     return operator
 
 
-def _require_inside(position: NDArray[np.float64], pieces: int) -> None:
-    if position.size and (np.nanmin(position) < -1e-9 or np.nanmax(position) > pieces + 1e-9):
-        raise PhysicsInputError("unix_s", "time outside the span of the radial-velocity track")
+def evaluate_pieces(
+    coefficients: NDArray[np.float64],
+    first_piece: ArrayLike,
+    pieces: ArrayLike,
+    start_unix_s: ArrayLike,
+    spacing_s: ArrayLike,
+    unix_s: ArrayLike,
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Radial velocity (m/s) and acceleration (m/s^2) at POSIX seconds ``unix_s``.
+
+    The track of each point (arguments broadcast against ``unix_s``) is ``pieces`` rows of
+    ``coefficients`` from ``first_piece``, starting at ``start_unix_s``, one piece per
+    ``spacing_s``. The one evaluation rule of every track: a time that is not finite (NaN,
+    inf) or lies outside its track's span is refused with :class:`PhysicsInputError`.
+    """
+    times = np.asarray(unix_s, dtype=np.float64)
+    position = (times - start_unix_s) / np.asarray(spacing_s, dtype=np.float64)
     if not np.all(np.isfinite(position)):
         raise PhysicsInputError("unix_s", "times must be finite")
+    if position.size and (np.any(position < -1e-9) or np.any(position > pieces + 1e-9)):
+        raise PhysicsInputError("unix_s", "time outside the span of its radial-velocity track")
+    local = np.clip(np.floor(position).astype(np.intp), 0, np.asarray(pieces) - 1)
+    value, slope = _horner(coefficients, np.asarray(first_piece) + local, position - local)
+    return value, slope / spacing_s
 
 
 def _horner(
@@ -193,15 +210,14 @@ class TrackBundle:
     ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
         """Radial velocity (m/s) and acceleration (m/s^2) of each point on its own track."""
         which = np.asarray(track_index, dtype=np.intp)
-        spacing = self._spacing[which]
-        position = (np.asarray(unix_s, dtype=np.float64) - self._start[which]) / spacing
-        pieces = self._pieces[which]
-        if position.size and (np.any(position < -1e-9) or np.any(position > pieces + 1e-9)):
-            raise PhysicsInputError("unix_s", "time outside the span of its radial-velocity track")
-        local = np.minimum(np.floor(position).astype(np.intp), pieces - 1)
-        local = np.maximum(local, 0)
-        value, slope = _horner(self._coefficients, self._offset[which] + local, position - local)
-        return value, slope / spacing
+        return evaluate_pieces(
+            self._coefficients,
+            self._offset[which],
+            self._pieces[which],
+            self._start[which],
+            self._spacing[which],
+            unix_s,
+        )
 
     def earth_drift_hz_s(
         self, track_index: ArrayLike, unix_s: ArrayLike, observed_frequency_hz: ArrayLike

@@ -53,6 +53,11 @@ class LoadedProtocol:
     band_set: BandSet = field(default_factory=lambda: BandSet(()), repr=False, compare=False)
 
 
+def model_of(protocol: LoadedProtocol | ProtocolModel) -> ProtocolModel:
+    """The validated model of a loaded protocol, or the model itself: the one lookup."""
+    return protocol if isinstance(protocol, ProtocolModel) else protocol.model
+
+
 def validate_protocol_file(path: str | Path) -> list[ProtocolProblem]:
     """Every problem of the protocol file at ``path`` and of its band file (empty: valid)."""
     path = Path(path)

@@ -49,6 +49,7 @@ from confirm_service.protocol.facts import (
     SignoffFact,
     TargetFact,
 )
+from confirm_service.protocol.loader import model_of
 from confirm_service.protocol.matching import CandidateView, build_candidate_views, is_target_scan
 from confirm_service.protocol.reference import PhysicsContext, ReferenceSignal
 from confirm_service.protocol.results import (
@@ -70,7 +71,7 @@ EVALUATION_CHUNK = 64
 
 
 def _model(protocol: Any) -> ProtocolModel:
-    return protocol if isinstance(protocol, ProtocolModel) else protocol.model
+    return model_of(protocol)
 
 
 def _bands(protocol: Any, bands: BandSet | Sequence[InterferenceBand] | None) -> BandSet:

@@ -31,6 +31,7 @@ from confirm_service.protocol.facts import (
     SiteFact,
     TargetFact,
 )
+from confirm_service.protocol.loader import model_of
 from confirm_service.protocol.reference import (
     PhysicsContext,
     ReferenceSignal,
@@ -191,7 +192,7 @@ def tolerance_hz(
 
 
 def _protocol_model(protocol: Any) -> ProtocolModel:
-    return protocol if isinstance(protocol, ProtocolModel) else protocol.model
+    return model_of(protocol)
 
 
 @dataclass(frozen=True, slots=True)

@@ -1,32 +1,84 @@
-"""Work that is due with time: deadline sweeps and scheduled audit checkpoints.
+"""Work that falls due with time, as named jobs that take the time they run for.
 
-Each job opens its own write transaction and calls the same service functions as the API.
+Every job is a function ``(database, settings, now) -> summary``: it opens its own write
+transactions and calls the same service functions as the API. ``run_due`` runs them all once,
+in order, for one instant (``confirm-service scheduler run-due --now``); the scheduler process
+runs each on its own interval. Every run is logged in ``scheduler_runs``.
 """
 
 from __future__ import annotations
 
 import logging
+import os
+import socket
+from collections.abc import Callable
+from dataclasses import dataclass
+from datetime import datetime
+from importlib import import_module
+
+from sqlalchemy import select
 
 from confirm_service.actor import Actor
 from confirm_service.audit.checkpoints import latest_checkpoint, take_checkpoint
 from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
-from confirm_service.services.evaluation import reevaluate_due
+from confirm_service.models import Candidate, SchedulerRun
+from confirm_service.services import evaluation
+from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)
 SCHEDULER = Actor(name="scheduler", role="system")
 
+JobFunction = Callable[[Database, Settings, datetime], str]
 
-def sweep_deadlines(database: Database) -> int:
-    """Re-evaluate open candidates so that passed deadlines escalate or expire them."""
+
+def runner_name() -> str:
+    """This process, as recorded with each job run: host and process id."""
+    return f"{socket.gethostname()}:{os.getpid()}"
+
+
+def sweep_deadlines(database: Database, settings: Settings, now: datetime) -> str:
+    """Re-evaluate every open candidate at ``now``: passed stage deadlines escalate or expire
+    it, and checks whose waiting time ran out are decided. One transaction per candidate."""
+    with database.read() as session:
+        ids = list(
+            session.execute(
+                select(Candidate.id).where(Candidate.state == "open").order_by(Candidate.id)
+            ).scalars()
+        )
+    changed = 0
+    for candidate_id in ids:
+        with database.write() as session:
+            candidate = evaluation.locked_candidate(session, candidate_id)
+            if candidate.state != "open":
+                continue
+            before = (candidate.state, candidate.stage, candidate.held)
+            evaluation.reevaluate(session, SCHEDULER, candidate, now)
+            changed += before != (candidate.state, candidate.stage, candidate.held)
+    return f"{len(ids)} open candidate(s) re-evaluated, {changed} changed"
+
+
+def close_stale_scans(database: Database, settings: Settings, now: datetime) -> str:
+    """Close scans left open too long (the observation service decides which)."""
+    try:
+        scans = import_module("confirm_service.services.scans")
+        close = scans.close_stale_scans
+    except (ModuleNotFoundError, AttributeError):
+        return "skipped: this version has no open scans to close"
     with database.write() as session:
-        changed = reevaluate_due(session, SCHEDULER)
-    log.info("deadline sweep: %d candidate(s) changed", changed)
-    return changed
+        result = close(session, SCHEDULER, now)
+    count = len(result) if hasattr(result, "__len__") else result
+    return f"{count} stale scan(s) closed"
 
 
-def scheduled_checkpoint(database: Database, settings: Settings) -> int | None:
+def scheduled_checkpoint(database: Database, settings: Settings, now: datetime) -> str:
+    """Sign a checkpoint when the log grew since the last one."""
+    size = checkpoint_if_grown(database, settings)
+    return f"checkpoint at tree size {size}" if size else "log unchanged, no checkpoint"
+
+
+def checkpoint_if_grown(database: Database, settings: Settings) -> int | None:
     """Sign a checkpoint when the log grew since the last one; returns its tree size."""
     with database.write() as session:
         size = tree_size(session)
@@ -34,5 +86,71 @@ def scheduled_checkpoint(database: Database, settings: Settings) -> int | None:
         if latest is not None and latest.tree_size >= size:
             return None
         checkpoint = take_checkpoint(session, settings, "scheduled")
-        log.info("checkpoint at tree size %d", checkpoint.tree_size)
         return checkpoint.tree_size
+
+
+@dataclass(frozen=True)
+class DueJob:
+    """A named job and how often the scheduler process runs it, in scheduler ticks."""
+
+    name: str
+    every_ticks: int
+    run: JobFunction
+
+
+def _followup_job(name: str) -> JobFunction:
+    """A follow-up job by name, imported when it runs (the scheduler sits above services)."""
+
+    def run(database: Database, settings: Settings, now: datetime) -> str:
+        from confirm_service.followup import due
+
+        function: JobFunction = getattr(due, name)
+        return function(database, settings, now)
+
+    run.__name__ = name
+    return run
+
+
+JOBS: tuple[DueJob, ...] = (
+    DueJob("deadlines", 5, sweep_deadlines),
+    DueJob("stale-scans", 5, close_stale_scans),
+    DueJob("checkpoint", 60, scheduled_checkpoint),
+)
+"""In the order ``run_due`` runs them: evaluation first, so that the intents it records are
+handled in the same pass."""
+
+JOBS_BY_NAME = {job.name: job for job in JOBS}
+
+
+@dataclass(frozen=True)
+class JobRun:
+    job: str
+    outcome: str  # "ok" or "error"
+    summary: str
+
+
+def run_job(database: Database, settings: Settings, name: str, now: datetime) -> JobRun:
+    """Run one job for ``now`` and log the run (job, runner, times, outcome, summary)."""
+    job = JOBS_BY_NAME[name]
+    with database.write() as session:
+        run = SchedulerRun(job=name, runner=runner_name(), due_at=now, started_at=utc_now())
+        session.add(run)
+        session.flush()
+        run_id = run.id
+    outcome, summary = "ok", ""
+    try:
+        summary = job.run(database, settings, now)
+    except Exception as exc:
+        outcome, summary = "error", f"{type(exc).__name__}: {exc}"
+        log.exception("job %s failed", name)
+    with database.write() as session:
+        row = session.get(SchedulerRun, run_id)
+        assert row is not None
+        row.finished_at, row.outcome, row.summary = utc_now(), outcome, summary[:2000]
+    log.info("%s: %s", name, summary)
+    return JobRun(name, outcome, summary)
+
+
+def run_due(database: Database, settings: Settings, now: datetime) -> list[JobRun]:
+    """Run every job once for ``now``, in order."""
+    return [run_job(database, settings, job.name, now) for job in JOBS]

@@ -12,6 +12,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import datetime, timedelta
 
+from confirm_service.cautions import NOT_A_DETECTION, SITE_SAFETY
 from confirm_service.physics import (
     MODEL_DESCRIPTION,
     PhysicsInputError,
@@ -38,13 +39,9 @@ __all__ = ["compute_prediction", "compute_visibility"]
 
 CAUTION = (
     "A signal found where predicted supports the hypothesis of a sky-fixed transmitter; it is "
-    "not a detection. A candidate that passes every check is still not a detection: public "
-    "statements follow the institution's policy and the agreed post-detection principles."
+    f"not a detection. {NOT_A_DETECTION}"
 )
-VISIBILITY_CAUTION = (
-    "Geometry only (no refraction). Sun avoidance and every other telescope safety rule are set "
-    "by the site and take precedence."
-)
+VISIBILITY_CAUTION = f"Geometry only (no refraction). {SITE_SAFETY}"
 MAX_VISIBILITY_DAYS = 400.0
 
 

@@ -69,4 +69,9 @@ def test_db_upgrade_creates_a_database(tmp_path):
     url = f"sqlite:///{tmp_path / 'new.db'}"
     result = run(["db", "upgrade"], url)
     assert result.exit_code == 0, result.output
-    assert run(["db", "current"], url).stdout.strip() == "0001"
+    from alembic.script import ScriptDirectory
+
+    from confirm_service.db import alembic_config
+
+    head = ScriptDirectory.from_config(alembic_config(url)).get_current_head()
+    assert run(["db", "current"], url).stdout.strip() == head

@@ -34,13 +34,14 @@ from confirm_service.cli.context import cli_actor
 from confirm_service.db import Database
 from confirm_service.models import AuditEntry, Detection, Observation
 from confirm_service.schemas.log import SiteIn, TargetIn
-from confirm_service.services import exchange, runtime
+from confirm_service.services import runtime
+from confirm_service.services.exchange import columns, export, importer
 from confirm_service.services.sites import create_site, create_target
 from tests.factories import SITE_NORTH, SITE_SOUTH, TARGET
 
-OBSERVATION_COLUMNS = exchange.OBSERVATION_COLUMNS
-DETECTION_COLUMNS = exchange.DETECTION_COLUMNS
-FLOAT_COLUMNS = sorted(exchange.FLOAT_COLUMNS)
+OBSERVATION_COLUMNS = columns.OBSERVATION_COLUMNS
+DETECTION_COLUMNS = columns.DETECTION_COLUMNS
+FLOAT_COLUMNS = sorted(columns.FLOAT_COLUMNS)
 IST = timezone(timedelta(hours=5, minutes=30))
 EMPTY_DETECTION = dict.fromkeys(DETECTION_COLUMNS)
 
@@ -181,12 +182,12 @@ def _text(value: Any) -> str:
 
 def write_source(path: Path, fmt: str, rows: list[dict[str, Any]]) -> None:
     """Write ``rows`` the way an outside producer would, without the project's writers."""
-    columns = list(OBSERVATION_COLUMNS + DETECTION_COLUMNS)
+    names = list(OBSERVATION_COLUMNS + DETECTION_COLUMNS)
     if fmt == "csv":
         with open(path, "w", newline="", encoding="utf-8") as stream:
             writer = csv.writer(stream)
-            writer.writerow(columns)
-            writer.writerows([[_text(row[c]) for c in columns] for row in rows])
+            writer.writerow(names)
+            writer.writerows([[_text(row[c]) for c in names] for row in rows])
     elif fmt == "jsonl":
         with open(path, "w", encoding="utf-8") as stream:
             for row in rows:  # null keys left out: a missing key means "not given"
@@ -196,13 +197,13 @@ def write_source(path: Path, fmt: str, rows: list[dict[str, Any]]) -> None:
         from astropy.table import MaskedColumn, Table
 
         table = Table()
-        for c in columns:
+        for c in names:
             values = [row[c] for row in rows]
             mask = [v is None for v in values]
-            if c in exchange.FLOAT_COLUMNS:
+            if c in columns.FLOAT_COLUMNS:
                 data = np.array([0.0 if v is None else v for v in values], dtype=np.float64)
-                table[c] = MaskedColumn(data, mask=mask, unit=exchange.UNITS.get(c))
-            elif c in exchange.BOOL_COLUMNS:
+                table[c] = MaskedColumn(data, mask=mask, unit=columns.UNITS.get(c))
+            elif c in columns.BOOL_COLUMNS:
                 table[c] = MaskedColumn(np.array([bool(v) for v in values]), mask=mask)
             else:
                 table[c] = [_text(v) for v in values]
@@ -214,9 +215,9 @@ def _typed(column: str, value: Any) -> Any:
         return None
     if column == "start":
         return datetime.fromisoformat(value)
-    if column in exchange.FLOAT_COLUMNS:
+    if column in columns.FLOAT_COLUMNS:
         return float(value)
-    if column in exchange.BOOL_COLUMNS and isinstance(value, str):
+    if column in columns.BOOL_COLUMNS and isinstance(value, str):
         return {"true": True, "false": False}[value]
     if column in ("observation_id", "detection_id"):
         return int(value)
@@ -244,7 +245,7 @@ def read_back(path: Path, fmt: str) -> list[dict[str, Any]]:
 
 
 def without_ids(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
-    return [{k: v for k, v in r.items() if k not in exchange.IGNORED_COLUMNS} for r in rows]
+    return [{k: v for k, v in r.items() if k not in columns.IGNORED_COLUMNS} for r in rows]
 
 
 def assert_same_bits(actual: list[dict[str, Any]], expected: list[dict[str, Any]]) -> None:
@@ -331,7 +332,7 @@ def test_exported_votable_read_by_astropy_has_float64_units_and_values(cli, data
 
     table = parse(str(out)).get_first_table()
     fields = {f.name: f for f in table.fields}
-    assert list(fields) == list(exchange.EXPORT_COLUMNS)
+    assert list(fields) == list(columns.EXPORT_COLUMNS)
     for name in FLOAT_COLUMNS:
         assert fields[name].datatype == "double", name  # VOTable 1.4: double = IEEE 754 binary64
         assert table.array[name].dtype == np.float64, name
@@ -358,26 +359,26 @@ def test_exported_votable_read_by_astropy_has_float64_units_and_values(cli, data
 def test_export_pages_by_id_and_filters(database, tmp_path):
     source = tmp_path / "source.csv"
     write_source(source, "csv", SOURCE_ROWS * 3)  # repeats make 9 observations (3 per copy)
-    summary = exchange.import_file(database, cli_actor(), source, "csv", 300.0, 50_000)
+    summary = importer.import_file(database, cli_actor(), source, "csv", 300.0, 50_000)
     assert (summary.observations_created, summary.rows_accepted) == (9, 12)
     whole, paged = tmp_path / "whole.jsonl", tmp_path / "paged.jsonl"
-    exchange.export_file(database, whole, "jsonl", page_size=1000)
-    pages = exchange.export_file(database, paged, "jsonl", page_size=1, detection_page_size=1)
+    export.export_file(database, whole, "jsonl", page_size=1000)
+    pages = export.export_file(database, paged, "jsonl", page_size=1, detection_page_size=1)
     assert (pages.observations, pages.rows) == (9, 12)
     assert read_back(paged, "jsonl") == read_back(whole, "jsonl")
     assert without_ids(read_back(paged, "jsonl")) == expected_rows() * 3
 
     only_tfo = tmp_path / "tfo.csv"
-    exchange.export_file(database, only_tfo, "csv", exchange.ExportFilter(site="TFO"))
+    export.export_file(database, only_tfo, "csv", export.ExportFilter(site="TFO"))
     assert {r["site"] for r in read_back(only_tfo, "csv")} == {"TFO"}
     assert len(read_back(only_tfo, "csv")) == 3
-    window = exchange.ExportFilter(
+    window = export.ExportFilter(
         target="Kestrel-7",
         start_from=datetime(2025, 3, 14, 4, 0, tzinfo=UTC),  # inclusive: scan A
         start_to=datetime(2025, 3, 14, 4, 6, tzinfo=UTC),  # exclusive: not scan C
     )
     windowed = tmp_path / "window.csv"
-    exchange.export_file(database, windowed, "csv", window)
+    export.export_file(database, windowed, "csv", window)
     assert {r["pipeline_run"] for r in read_back(windowed, "csv")} == {"run-0007"}
     assert {r["on_source"] for r in read_back(windowed, "csv")} == {True}
     assert len(read_back(windowed, "csv")) == 6
@@ -500,7 +501,7 @@ def test_unreadable_jsonl_line_refuses_the_observations_around_it(database, tmp_
     ]
     source = tmp_path / "hits.jsonl"
     source.write_text("\n".join(lines) + "\n", encoding="utf-8")
-    summary = exchange.import_file(database, cli_actor(), source, "jsonl", 300.0, 50_000)
+    summary = importer.import_file(database, cli_actor(), source, "jsonl", 300.0, 50_000)
     assert [(r.line, r.field) for r in summary.reasons] == [
         (3, "row"),
         (4, "row"),
@@ -517,7 +518,7 @@ def test_unreadable_jsonl_line_refuses_the_observations_around_it(database, tmp_
 def test_too_many_detections_in_one_observation_refuses_it(database, tmp_path):
     source = tmp_path / "big.csv"
     write_source(source, "csv", [{**SCAN_A, **HITS_A[0]}] * 3 + [{**SCAN_C, **EMPTY_DETECTION}])
-    summary = exchange.import_file(database, cli_actor(), source, "csv", 300.0, max_batch=2)
+    summary = importer.import_file(database, cli_actor(), source, "csv", 300.0, max_batch=2)
     assert [(r.line, r.field) for r in summary.reasons] == [(4, "detections")]
     assert (summary.observations_created, summary.rows_refused) == (1, 3)
     assert count(database, Detection) == 0
@@ -541,7 +542,7 @@ def test_all_accepted_exits_0_and_summary_is_the_only_stdout(cli, tmp_path):
         ("empty.csv", b"", "no header"),
         ("unknown.csv", b"site,start,freq\n", "unknown column"),
         ("short.csv", b"site,start,duration_s\n", "required column"),
-        ("latin1.csv", ",".join(exchange.REQUIRED_COLUMNS).encode() + b"\nPR\xc4\n", "UTF-8"),
+        ("latin1.csv", ",".join(columns.REQUIRED_COLUMNS).encode() + b"\nPR\xc4\n", "UTF-8"),
         ("broken.vot", b"<VOTABLE><RESOURCE>", "VOTable"),
     ],
 )
@@ -558,7 +559,7 @@ def test_unusable_input_exits_2(cli, database, tmp_path, name, content, message)
 def test_votable_with_float32_or_foreign_unit_is_unusable(cli, database, tmp_path):
     from astropy.table import Table
 
-    base = {c: [SOURCE_ROWS[0][c]] for c in exchange.REQUIRED_COLUMNS}
+    base = {c: [SOURCE_ROWS[0][c]] for c in columns.REQUIRED_COLUMNS}
     base["start"] = [SOURCE_ROWS[0]["start"].isoformat()]
     narrow = Table(base)
     narrow["frequency_hz"] = np.array([30_000_000_000.001], dtype=np.float32)

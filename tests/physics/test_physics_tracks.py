@@ -116,6 +116,39 @@ def test_cache_crosses_segments_and_bundles_agree():
     assert np.array_equal(a_bundle, segment.acceleration_m_s2(inside))
 
 
+def _synthetic_tracks() -> tuple[RadialVelocityTrack, RadialVelocityTrack]:
+    """Two tracks on different spans, from invented knot values (no astropy needed)."""
+    knots = np.arange(24, dtype=np.float64)
+    first = RadialVelocityTrack.from_knots(10, 60.0, 300.0 * np.sin(0.2 * knots))
+    second = RadialVelocityTrack.from_knots(40, 60.0, 250.0 * np.cos(0.3 * knots) + 5.0)
+    return first, second
+
+
+def test_track_and_bundle_evaluate_alike_on_every_track():
+    # One evaluation rule for both: a bundle point equals its own track's value bit for bit.
+    tracks = _synthetic_tracks()
+    bundle = TrackBundle(tracks)
+    for index, track in enumerate(tracks):
+        times = np.linspace(track.start_unix_s, track.end_unix_s, 37)
+        alone = track.radial_velocity_and_acceleration(times)
+        together = bundle.radial_velocity_and_acceleration(np.full(times.size, index), times)
+        assert np.array_equal(alone[0], together[0])
+        assert np.array_equal(alone[1], together[1])
+
+
+@pytest.mark.parametrize("bad", [np.nan, np.inf, -np.inf, "outside"])
+def test_track_and_bundle_refuse_the_same_times(bad):
+    tracks = _synthetic_tracks()
+    first = tracks[0]
+    bad_time = first.end_unix_s + 3600.0 if bad == "outside" else float(bad)
+    times = np.array([first.start_unix_s + 30.0, bad_time])
+    with pytest.raises(PhysicsInputError) as alone:
+        first.radial_velocity_and_acceleration(times)
+    with pytest.raises(PhysicsInputError) as together:
+        TrackBundle(tracks).radial_velocity_and_acceleration([0, 0], times)
+    assert str(alone.value) == str(together.value)
+
+
 def test_cache_is_bounded_and_cleared_by_ephemeris_change(builtin_ephemeris):
     cache = TrackCache(max_tracks=3)
     request = TrackRequest(site_location(0.0, 0.0, 0.0), target_coord(0.0, 0.0))
