@@ -186,7 +186,7 @@ def authenticate_request() -> Response | None:
             return problem_response(
                 401,
                 "Unauthorized",
-                "the token is unknown or revoked",
+                "the token is unknown, revoked or expired",
                 [("Authorization", "invalid token")],
                 challenge,
             )

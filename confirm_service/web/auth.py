@@ -157,7 +157,7 @@ def load_signed_in_actor() -> Actor | None:
     database = _database()
     with database.read() as db_session:
         token = db_session.get(ApiToken, token_id)
-        if token is None or token.revoked_at is not None:
+        if token is None or not tokens.is_live(token):
             _forget_token()
             return None
         actor = Actor(name=token.name, role=token.role, token_id=token.id)
