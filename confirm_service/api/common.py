@@ -15,7 +15,7 @@ from pydantic import BaseModel, TypeAdapter, ValidationError
 from confirm_service.actor import Actor
 from confirm_service.api.problems import problem_response, validation_errors
 from confirm_service.db import Database
-from confirm_service.errors import ServiceError
+from confirm_service.errors import Invalid, ServiceError
 from confirm_service.services import access, tokens
 
 M = TypeVar("M")
@@ -36,6 +36,9 @@ def settings() -> Any:
 
 
 UTF8_NAMES = ("utf-8", "utf8")
+MAX_JSON_DEPTH = 200
+"""Nesting limit of pydantic-core's JSON parser (its recursion limit); no request schema comes
+near it, so a deeper body is hostile and refused before anything else reads it."""
 _SPACE_BEFORE_COLON = re.compile(rb'"\s+:')
 
 
@@ -96,7 +99,13 @@ def parse_body(schema: type[M] | TypeAdapter[M]) -> M:
             value = schema.model_validate_json(raw)  # type: ignore[union-attr]
             again = value.model_dump_json(exclude_unset=True, by_alias=True).encode()  # type: ignore[attr-defined]
     except ValidationError as exc:
-        if any(e["type"] == "json_invalid" for e in exc.errors()):
+        invalid = [e["msg"] for e in exc.errors() if e["type"] == "json_invalid"]
+        if any("recursion limit" in message for message in invalid):
+            raise Invalid(
+                "the body is nested too deeply",
+                [("body", f"JSON nested deeper than {MAX_JSON_DEPTH} levels")],
+            ) from None
+        if invalid:
             raise UnsupportedBody("the body is not valid JSON") from None
         if any(e["type"] in ("model_type", "dict_type") and not e["loc"] for e in exc.errors()):
             raise ServiceError(

@@ -184,3 +184,10 @@ def test_a_key_given_twice_in_one_detection_row_is_refused(logged, auth):
     refused(logged.post(url, data=text, headers=headers), 422, "body")
     text = '{"detections": [' + ", ".join([good] * 4) + "]}"
     assert logged.post(url, data=text, headers=headers).status_code == 201
+
+
+@pytest.mark.parametrize("depth", [250, 100_000])
+def test_deeply_nested_json_is_refused(client, auth, depth):
+    text = '{"name": ' + "[" * depth + "]" * depth + ', "ra_deg": 1.0, "dec_deg": 2.0}'
+    headers = auth("coordinator", **{"Content-Type": "application/json"})
+    refused(client.post("/api/v1/targets", data=text, headers=headers), 422, "body")
