@@ -61,15 +61,6 @@ bp = Blueprint(
 LIST_LIMIT = 50
 STATES = ("open", "confirmed", "rejected", "withdrawn")
 PUBLIC_ENDPOINTS = {"dashboard.sign_in", "dashboard.static"}
-SECURITY_HEADERS = {
-    "Content-Security-Policy": (
-        "default-src 'none'; style-src 'self'; img-src 'self' data:; form-action 'self'; "
-        "frame-ancestors 'none'; base-uri 'none'"
-    ),
-    "X-Content-Type-Options": "nosniff",
-    "Referrer-Policy": "no-referrer",
-    "X-Frame-Options": "DENY",
-}
 
 
 # --- set-up, guard, headers, errors ----------------------------------------------------------
@@ -99,9 +90,7 @@ def _require_sign_in() -> Any:
 
 
 @bp.after_request
-def _security_headers(response: Response) -> Response:
-    for name, value in SECURITY_HEADERS.items():
-        response.headers.setdefault(name, value)
+def _no_store(response: Response) -> Response:
     if request.endpoint != "dashboard.static":
         response.headers["Cache-Control"] = "no-store"
     return response
