@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import tempfile
 import threading
+from dataclasses import replace
 from pathlib import Path
 
 from sqlalchemy import select, update
@@ -97,15 +98,21 @@ def mark_active(session: Session, record_row: ProtocolRecord) -> None:
 
 
 def _materialise(row: ProtocolRecord) -> LoadedProtocol:
-    """Rebuild a LoadedProtocol from its stored texts (identical hashes by construction)."""
-    folder = Path(tempfile.mkdtemp(prefix="confirm-protocol-"))
-    protocol_path = folder / "protocol.toml"
-    protocol_path.write_bytes(row.source_text.encode("utf-8"))
-    if row.bands_relative_path and row.bands_text is not None:
-        bands_path = folder / row.bands_relative_path
-        bands_path.parent.mkdir(parents=True, exist_ok=True)
-        bands_path.write_bytes(row.bands_text.encode("utf-8"))
-    return load_protocol(protocol_path)
+    """Rebuild a LoadedProtocol from its stored texts (identical hashes by construction).
+
+    The texts are written to a temporary folder only while they are read; the result points at
+    no file (``path`` and ``bands_path`` are None), as the folder is gone when it is returned.
+    """
+    with tempfile.TemporaryDirectory(prefix="confirm-protocol-") as temporary:
+        folder = Path(temporary)
+        protocol_path = folder / "protocol.toml"
+        protocol_path.write_bytes(row.source_text.encode("utf-8"))
+        if row.bands_relative_path and row.bands_text is not None:
+            bands_path = folder / row.bands_relative_path
+            bands_path.parent.mkdir(parents=True, exist_ok=True)
+            bands_path.write_bytes(row.bands_text.encode("utf-8"))
+        loaded = load_protocol(protocol_path)
+    return replace(loaded, path=None, bands_path=None)
 
 
 def protocol_for(session: Session, sha256: str, bands_sha256: str) -> LoadedProtocol:

@@ -6,9 +6,13 @@ from __future__ import annotations
 import json
 from dataclasses import replace
 
+import numpy as np
+import pytest
+
 from confirm_service.protocol import PhysicsContext, evaluate, load_protocol_text
 
 from .test_protocol_checks import chord_km
+from .test_protocol_reference import C_M_S, skyfield_earth_drift_hz_s
 
 
 def as_json(evaluation) -> str:
@@ -23,6 +27,29 @@ def test_same_facts_give_identical_evaluations(
         second = evaluate(default_protocol, scenario.facts, physics_context=physics_context)
         assert first == second, scenario.name
         assert as_json(first) == as_json(second)
+
+
+def test_repeated_results_are_also_right_against_skyfield(
+    default_protocol, injection_scenarios, physics_context
+):
+    """Identical output could be identically wrong. Independent check of what is repeated: the
+    Doppler check's reference residual drift equals the observed drift minus the Earth drift
+    that skyfield with skyfield-data's JPL DE421 gives (tolerance as in
+    test_protocol_reference: 3e-7 m/s^2 of line-of-sight acceleration)."""
+    checked = 0
+    for scenario in injection_scenarios.values():
+        evaluation = evaluate(default_protocol, scenario.facts, physics_context=physics_context)
+        doppler = next(r for r in evaluation.results if r.kind == "doppler_consistency")
+        if doppler.expected is None:
+            continue
+        facts = scenario.facts
+        reference, scan = facts.reference, facts.reference_observation
+        at = np.array([scan.start_unix_s + reference.time_offset_s])
+        earth = skyfield_earth_drift_hz_s(scan.site, facts.target, at, reference.frequency_hz)
+        tolerance = reference.frequency_hz * 3e-7 / C_M_S
+        assert doppler.expected == pytest.approx(reference.drift_hz_s - earth, abs=tolerance)
+        checked += 1
+    assert checked >= 5
 
 
 def test_results_do_not_depend_on_cache_history(
