@@ -424,3 +424,32 @@ def summary_lines(result: DemoResult) -> list[str]:
         ]
     lines += ["", "CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION]
     return lines
+
+
+DEMO_PEOPLE = (("demo-coordinator", "coordinator"), ("demo-viewer", "viewer"))
+
+
+def dashboard_sign_in(result: DemoResult, port: int = 8080) -> list[str]:
+    """Create the demo's web accounts (fresh random passwords) and say how to open the pages."""
+    import secrets
+
+    from confirm_service.actor import SYSTEM
+    from confirm_service.db import Database
+    from confirm_service.services.people import create_person
+
+    database = Database(result.database_url)
+    passwords = {}
+    with database.write() as session:
+        for username, role in DEMO_PEOPLE:
+            passwords[username] = secrets.token_urlsafe(12)
+            create_person(session, SYSTEM, username, username, role, passwords[username])
+    database.dispose()
+    folder = result.folder.resolve()
+    return [
+        "",
+        "web pages: start the server with",
+        f"  CONFIRM_DATABASE_URL={result.database_url} CONFIRM_INSTANCE_PATH={folder} "
+        f"confirm-service serve --port {port}",
+        f"then open http://127.0.0.1:{port}/dashboard and sign in as",
+        *(f"  {name:<17} password {passwords[name]}  ({role})" for name, role in DEMO_PEOPLE),
+    ]

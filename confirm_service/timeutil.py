@@ -38,3 +38,20 @@ def require_aware_utc(value: datetime, field: str = "time") -> datetime:
 def iso_utc(value: datetime) -> str:
     """ISO 8601 with an explicit ``+00:00`` offset."""
     return require_aware_utc(value).isoformat()
+
+
+UNIX_EPOCH_MJD = 40587.0
+"""The Modified Julian Date of 1970-01-01T00:00:00 UTC (MJD = JD - 2400000.5)."""
+
+
+def mjd_utc(value: datetime) -> float:
+    """Modified Julian Date on the UTC time scale (days; a leap second is not counted)."""
+    return UNIX_EPOCH_MJD + require_aware_utc(value).timestamp() / 86_400.0
+
+
+def utc_and_mjd(value: datetime | None) -> str:
+    """``2026-11-20 03:00:00 UTC (MJD 61364.12500)``, or an em dash for no time."""
+    if value is None:
+        return "—"
+    utc = require_aware_utc(value)
+    return f"{utc:%Y-%m-%d %H:%M:%S} UTC (MJD {mjd_utc(utc):.5f})"

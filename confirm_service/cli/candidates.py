@@ -9,6 +9,7 @@ from confirm_service.cli import main
 from confirm_service.cli.context import open_database
 from confirm_service.schemas.queries import CandidateQuery
 from confirm_service.services import candidate_views as views
+from confirm_service.timeutil import utc_and_mjd
 
 
 def _value(value: float | None, unit: str | None) -> str:
@@ -28,25 +29,43 @@ def candidates_group() -> None:
     "--state", default=None, type=click.Choice(["open", "rejected", "confirmed", "withdrawn"])
 )
 @click.option("--stage", default=None)
-@click.option("--target", default=None)
-@click.option("--site", default=None)
+@click.option("--target", default=None, help="Exact target name.")
+@click.option("--site", default=None, help="A site code where the candidate has hits.")
+@click.option(
+    "--search", "q", default=None, help="A candidate id, part of a target name, or a site code."
+)
+@click.option(
+    "--frequency-hz", type=float, default=None, help="Barycentric or any linked hit's frequency."
+)
+@click.option(
+    "--tolerance-hz", type=float, default=None, help="± around --frequency-hz (default 1000)."
+)
+@click.option("--after", default=0, type=click.IntRange(0), help="Only candidates after this id.")
 @click.option("--limit", default=100, show_default=True, type=click.IntRange(1, 1000))
-def list_candidates(state, stage, target, site, limit) -> None:  # type: ignore[no-untyped-def]
-    """One line per candidate."""
-    query = CandidateQuery(state=state, stage=stage, target=target, site=site, limit=limit)
+def list_candidates(**filters: object) -> None:
+    """One line per candidate (the same filters and search as the web page and the API)."""
+    from confirm_service.cli.context import validated
+    from confirm_service.timeutil import mjd_utc
+
+    query = validated(CandidateQuery, filters, writes=False)
     database = open_database()
     with database.read() as session:
-        rows = [views.summary(session, c) for c in views.list_candidates(session, query, limit)]
+        rows = [
+            views.summary(session, c) for c in views.list_candidates(session, query, query.limit)
+        ]
     click.echo(
         f"{'id':>5}  {'state':<10} {'stage':<18} {'target':<14} {'site':<6} "
-        f"{'barycentric Hz':>20} {'residual Hz/s':>14}  reason"
+        f"{'barycentric Hz':>20} {'residual Hz/s':>14}  {'reference UTC':<19} {'MJD':>11}  reason"
     )
     for c in rows:
         click.echo(
             f"{c.id:>5}  {c.state:<10} {c.stage:<18} {c.target or '—':<14} {c.site:<6} "
             f"{c.barycentric_frequency_hz:>20,.3f} {c.residual_drift_hz_s:>+14.5f}  "
+            f"{c.reference_time:%Y-%m-%d %H:%M:%S} {mjd_utc(c.reference_time):>11.5f}  "
             f"{c.reason_class or ''}"
         )
+    if len(rows) == query.limit:
+        click.echo(f"more may follow: add --after {rows[-1].id}", err=True)
 
 
 @candidates_group.command("show")
@@ -58,7 +77,7 @@ def show(candidate_id: int) -> None:
         c = views.detail(session, candidate_id)
     click.echo(
         f"candidate {c.id}: {c.state} at stage {c.stage!r}; target {c.target}, "
-        f"found at {c.site} {c.reference_time.isoformat()}"
+        f"found at {c.site} {utc_and_mjd(c.reference_time)}"
     )
     click.echo(f"protocol {c.protocol.name} sha256 {c.protocol.sha256}")
     click.echo(
@@ -83,13 +102,13 @@ def show(candidate_id: int) -> None:
     click.echo("linked detections:")
     for d in c.detections:
         click.echo(
-            f"  {d.id:>8} {d.site:<6} {d.start:%Y-%m-%d %H:%M} {d.frequency_hz:>20,.3f} Hz "
+            f"  {d.id:>8} {d.site:<6} {utc_and_mjd(d.start)} {d.frequency_hz:>20,.3f} Hz "
             f"{d.drift_hz_s:+.5f} Hz/s SNR {d.snr:.1f} ({d.role})"
         )
     click.echo("history:")
     for h in c.history:
         click.echo(
-            f"  {h.at:%Y-%m-%d %H:%M:%S} {h.from_stage or '—'} → {h.to_stage} "
+            f"  {utc_and_mjd(h.at)} {h.from_stage or '—'} → {h.to_stage} "
             f"[{h.to_state}] by {h.actor}: {h.reason}"
         )
     for s in c.signoffs:

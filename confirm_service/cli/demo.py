@@ -20,7 +20,7 @@ from confirm_service.cli import main
 )
 def demo(folder: Path | None) -> None:
     """Create a fresh SQLite database and run an invented scenario through the service."""
-    from confirm_service.demo import run_demo, summary_lines
+    from confirm_service.demo import dashboard_sign_in, run_demo, summary_lines
 
     if folder is None:
         folder = Path.cwd() / f"confirm-demo-{datetime.now(UTC):%Y%m%dT%H%M%SZ}"
@@ -28,5 +28,5 @@ def demo(folder: Path | None) -> None:
         raise click.UsageError(f"{folder} exists; the demo needs a new folder")
     click.echo(f"confirm-service demo in {folder}")
     result = run_demo(folder, click.echo)
-    for line in summary_lines(result):
+    for line in summary_lines(result) + dashboard_sign_in(result):
         click.echo(line)

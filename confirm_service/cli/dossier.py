@@ -50,13 +50,19 @@ def dossier(what: str, folder: Path | None, out: Path | None, public_key: Path |
 
 
 def _write(candidate_id: int, folder: Path) -> None:
-    from confirm_service.dossier.build import build_dossier
-    from confirm_service.dossier.render import write_dossier
+    from confirm_service.cli.progress import working
 
-    database = open_database()
-    with database.write() as session:
-        document = build_dossier(session, settings(), candidate_id)
-    for path in write_dossier(document, folder):
+    with working("loading the physics and plotting libraries") as say:
+        from confirm_service.dossier.build import build_dossier
+        from confirm_service.dossier.render import write_dossier
+
+        database = open_database()
+        say(f"building the dossier of candidate {candidate_id} (predictions, proofs)")
+        with database.write() as session:
+            document = build_dossier(session, settings(), candidate_id)
+        say(f"writing {folder}")
+        paths = write_dossier(document, folder)
+    for path in paths:
         click.echo(str(path))
 
 

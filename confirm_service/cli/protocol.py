@@ -40,13 +40,18 @@ def replay(path: Path, candidate_id: int | None, show_all: bool) -> None:
 
     Nothing is written.
     """
-    from confirm_service.services.protocols import load_configured
-    from confirm_service.services.replay import replay as run_replay
+    from confirm_service.cli.progress import counted, working
 
-    protocol = load_configured(path)
+    with working("loading the protocol engine and physics"):
+        from confirm_service.services.protocols import load_configured
+        from confirm_service.services.replay import replay as run_replay
+
+        protocol = load_configured(path)
     database = open_database()
-    with database.read() as session:
-        outcomes = run_replay(session, protocol, candidate_id)
+    with database.read() as session, counted("replaying candidates", 0) as advance:
+        outcomes = run_replay(
+            session, protocol, candidate_id, progress=lambda done, total: advance(1, total)
+        )
     changed = [o for o in outcomes if o.differs]
     click.echo(f"{'candidate':>9}  {'recorded':<28} {'under ' + protocol.name:<28} reason")
     for o in outcomes if show_all else changed:

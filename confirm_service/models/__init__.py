@@ -20,9 +20,11 @@ from confirm_service.models.followups import (
     ReceivedMessage,
 )
 from confirm_service.models.log import Detection, Observation, Site, Target
+from confirm_service.models.people import PERSON_ROLES, Person
 from confirm_service.models.scheduler import SchedulerJob, SchedulerRun
 
 __all__ = [
+    "PERSON_ROLES",
     "ROLES",
     "ApiToken",
     "AuditCheckpoint",
@@ -38,6 +40,7 @@ __all__ = [
     "FollowUpRequest",
     "IdempotencyRecord",
     "Observation",
+    "Person",
     "OutboundMessage",
     "PartnerSecret",
     "ProtocolRecord",

@@ -35,6 +35,7 @@ from confirm_service.protocol.machine import (
     initial_stage,
     intake_decision,
     iter_evaluations,
+    signoff_statuses,
     stage_entry_actions,
 )
 from confirm_service.protocol.matching import (
@@ -104,6 +105,7 @@ __all__ = [
     "reference_of",
     "search_window_hz",
     "search_windows_hz",
+    "signoff_statuses",
     "stage_entry_actions",
     "validate_interference_band_file",
     "validate_protocol_file",

@@ -374,6 +374,13 @@ def _deadline_unix_s(stage: StageModel, entered_unix_s: float) -> float | None:
     return entered_unix_s + stage.deadline_hours * 3600.0
 
 
+def signoff_statuses(
+    stage: StageModel, signoffs: Sequence[SignoffFact], entered_unix_s: float
+) -> tuple[SignoffStatus, ...]:
+    """Per rule of ``stage``: who approved or declined since entry (the one sign-off rule)."""
+    return _signoff_statuses(stage, signoffs, entered_unix_s)
+
+
 def _signoff_statuses(
     stage: StageModel, signoffs: Sequence[SignoffFact], entered_unix_s: float
 ) -> tuple[SignoffStatus, ...]:

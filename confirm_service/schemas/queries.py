@@ -35,3 +35,10 @@ class CandidateQuery(ListQuery):
     site: str | None = None
     check_kind: str | None = None
     check_outcome: str | None = None
+    q: Annotated[str, Field(max_length=200)] | None = Field(
+        None, description="search: a candidate id, part of a target name, or a site code"
+    )
+    frequency_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = Field(
+        None, description="barycentric or any linked hit's frequency within tolerance_hz of this"
+    )
+    tolerance_hz: Annotated[float, Field(ge=0, le=1e9, allow_inf_nan=False)] = 1000.0

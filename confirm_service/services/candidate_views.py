@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import UTC, datetime
 from typing import Any
 
-from sqlalchemy import and_, func, select
+from sqlalchemy import and_, func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
@@ -74,8 +74,62 @@ def list_candidates(session: Session, query: CandidateQuery, limit: int) -> list
             conditions.append(CheckResult.outcome == query.check_outcome)
         matching = select(CheckResult.candidate_id).join(latest, and_(*conditions))
         statement = statement.where(Candidate.id.in_(matching))
+    if query.q:
+        statement = statement.where(_matches_text(query.q))
+    if query.frequency_hz is not None:
+        statement = statement.where(_near_frequency(query.frequency_hz, query.tolerance_hz))
     statement = statement.order_by(Candidate.id).limit(limit)
     return list(session.execute(statement).scalars())
+
+
+def _matches_text(text: str) -> Any:
+    """A candidate id (``12`` or ``#12``), part of a target name, or a site code (any case)."""
+    text = text.strip()
+    number = text.removeprefix("#")
+    pattern = "%" + text.lower().replace("\\", "").replace("%", "").replace("_", "\\_") + "%"
+    named = select(Target.id).where(func.lower(Target.name).like(pattern, escape="\\"))
+    at_site = (
+        select(CandidateDetection.candidate_id)
+        .join(Observation, Observation.id == CandidateDetection.observation_id)
+        .join(Site, Site.id == Observation.site_id)
+        .where(func.lower(Site.code) == text.lower())
+    )
+    conditions = [Candidate.target_id.in_(named), Candidate.id.in_(at_site)]
+    if number.isdigit():
+        conditions.append(Candidate.id == int(number))
+    return or_(*conditions)
+
+
+def _near_frequency(frequency_hz: float, tolerance_hz: float) -> Any:
+    """The barycentric frequency, or a linked hit's frequency, within the tolerance (Hz)."""
+    low, high = frequency_hz - tolerance_hz, frequency_hz + tolerance_hz
+    linked = (
+        select(CandidateDetection.candidate_id)
+        .join(Detection, Detection.id == CandidateDetection.detection_id)
+        .where(Detection.frequency_hz.between(low, high))
+    )
+    return or_(Candidate.barycentric_frequency_hz.between(low, high), Candidate.id.in_(linked))
+
+
+def counts_by_state_and_stage(session: Session) -> dict[tuple[str, str], int]:
+    """How many candidates are in each (state, stage)."""
+    rows = session.execute(
+        select(Candidate.state, Candidate.stage, func.count()).group_by(
+            Candidate.state, Candidate.stage
+        )
+    ).all()
+    return {(state, stage): int(number) for state, stage, number in rows}
+
+
+def targets_with_candidates(session: Session) -> list[str]:
+    """Names of targets that have at least one candidate, sorted."""
+    names = (
+        select(Target.name)
+        .join(Candidate, Candidate.target_id == Target.id)
+        .distinct()
+        .order_by(Target.name)
+    )
+    return list(session.execute(names).scalars())
 
 
 def _utc_from_unix(unix_s: float) -> datetime:

@@ -7,6 +7,7 @@ compared with the candidate's recorded state and stage.
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime
 
@@ -66,10 +67,17 @@ def replay(
     protocol: LoadedProtocol,
     candidate_id: int | None = None,
     now: datetime | None = None,
+    progress: Callable[[int, int], None] | None = None,
 ) -> list[ReplayOutcome]:
-    """Outcomes for one candidate or all, in id order (read only)."""
+    """Outcomes for one candidate or all, in id order (read only); ``progress(done, total)``."""
     now = now or utc_now()
     query = select(Candidate).order_by(Candidate.id)
     if candidate_id is not None:
         query = query.where(Candidate.id == candidate_id)
-    return [replay_candidate(session, c, protocol, now) for c in session.execute(query).scalars()]
+    candidates = list(session.execute(query).scalars())
+    outcomes = []
+    for done, candidate in enumerate(candidates, start=1):
+        outcomes.append(replay_candidate(session, candidate, protocol, now))
+        if progress is not None:
+            progress(done, len(candidates))
+    return outcomes

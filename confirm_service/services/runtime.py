@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import sys
+
 from confirm_service.config import ConfigError, Settings, load_settings
 
 _settings: Settings | None = None
@@ -13,6 +15,9 @@ def configure(settings: Settings) -> None:
     A named ephemeris file that cannot be used stops start-up with a one-line ConfigError.
     """
     global _settings
+    if settings.ephemeris_file is None and "confirm_service.physics" not in sys.modules:
+        _settings = settings  # physics starts on the builtin ephemeris when first imported
+        return
     from confirm_service import physics
 
     wanted = str(settings.ephemeris_file) if settings.ephemeris_file else "builtin"

@@ -1,8 +1,10 @@
-"""Dashboard sign-in: an API token pasted once, its id kept in Flask's signed session cookie.
+"""Dashboard sign-in: a person's name and password, or (for machines and scripts) an API token.
 
-The service has no passwords. A person signs in with their API token; the session remembers the
-token's id (never the secret) and is checked against the database on every request, so a revoked
-token ends its sessions at once. Every POST carries a per-session CSRF token.
+The signed session cookie keeps only the account's or the token's id, never a secret, and is
+checked against the database on every request, so a disabled account or a revoked token ends
+its sessions at once. The cookie is HttpOnly, SameSite=Lax, limited to ``/dashboard``, and
+Secure except over plain HTTP to a loopback address (development and the demo). Every POST
+carries a per-session CSRF token. Wrong passwords lock an account (see services.people).
 """
 
 from __future__ import annotations
@@ -17,12 +19,12 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 from flask import Flask, abort, current_app, g, request, session
+from flask.sessions import SecureCookieSessionInterface
 
 from confirm_service.actor import Actor
 from confirm_service.config import ConfigError, Settings
 from confirm_service.db import Database
-from confirm_service.models import ApiToken
-from confirm_service.services import access, tokens
+from confirm_service.services import access, people, tokens
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -32,6 +34,8 @@ SESSION_MAX_AGE_S = 12 * 3600.0
 """A dashboard session ends 12 hours after sign-in, whatever the browser keeps."""
 
 TOKEN_ID_KEY = "token_id"
+PERSON_ID_KEY = "person_id"
+LOOPBACK_HOSTS = ("localhost", "127.0.0.1", "[::1]")
 SIGNED_IN_AT_KEY = "signed_in_unix_s"
 CSRF_KEY = "csrf"
 CSRF_FIELD = "csrf_token"
@@ -77,8 +81,17 @@ def secret_key_for(settings: Settings) -> str:
     return _stored_secret_key(settings.instance_path)
 
 
+class DashboardSessions(SecureCookieSessionInterface):
+    """Flask's signed-cookie sessions, Secure unless served over plain HTTP to loopback."""
+
+    def get_cookie_secure(self, app: Flask) -> bool:
+        host = request.host.rsplit(":", 1)[0] if not request.host.endswith("]") else request.host
+        return request.is_secure or host not in LOOPBACK_HOSTS
+
+
 def configure_app(app: Flask) -> None:
     """Give ``app`` a session-signing key and strict session-cookie settings (once)."""
+    app.session_interface = DashboardSessions()
     if not app.secret_key:
         app.secret_key = secret_key_for(app.extensions["confirm.settings"])
     if app.config.get("SESSION_COOKIE_SAMESITE") is None:
@@ -116,20 +129,34 @@ def _database() -> Database:
     return current_app.extensions["confirm.db"]
 
 
-def sign_in(secret: str) -> ApiToken | None:
-    """Check the pasted token; on success start a fresh session for it and return it."""
+def _start_session(key: str, value: int) -> None:
+    session.clear()  # a new session id-space: nothing from before sign-in survives
+    session[key] = value
+    session[SIGNED_IN_AT_KEY] = time.time()
+    csrf_token()
+
+
+def sign_in(secret: str) -> Actor | None:
+    """Check a pasted token; on success start a fresh session for it and return its actor."""
     secret = secret.strip()
     if not secret:
         return None
     with _database().read() as db_session:
         token = tokens.authenticate(db_session, secret)
-    if token is None:
-        return None
-    session.clear()  # a new session id-space: nothing from before sign-in survives
-    session[TOKEN_ID_KEY] = token.id
-    session[SIGNED_IN_AT_KEY] = time.time()
-    csrf_token()
-    return token
+        if token is None:
+            return None
+        actor = Actor(name=token.name, role=token.role, token_id=token.id)
+    _start_session(TOKEN_ID_KEY, token.id)
+    return actor
+
+
+def sign_in_person(username: str, password: str) -> people.SignInResult:
+    """Check a name and password (counting failures); on success start a fresh session."""
+    with _database().write() as db_session:
+        result = people.sign_in(db_session, username.strip(), password)
+    if result.actor is not None and result.person_id is not None:
+        _start_session(PERSON_ID_KEY, result.person_id)
+    return result
 
 
 def sign_out() -> None:
@@ -137,7 +164,7 @@ def sign_out() -> None:
 
 
 def _forget_token() -> None:
-    for key in (TOKEN_ID_KEY, SIGNED_IN_AT_KEY):
+    for key in (TOKEN_ID_KEY, PERSON_ID_KEY, SIGNED_IN_AT_KEY):
         session.pop(key, None)
 
 
@@ -149,15 +176,24 @@ def _session_is_fresh() -> bool:
 
 
 def load_signed_in_actor() -> Actor | None:
-    """The actor of this session's token, in ``g.actor``; None if signed out or revoked."""
+    """The actor of this session, in ``g.actor``; None if signed out, disabled or revoked."""
+    person_id = session.get(PERSON_ID_KEY)
+    if isinstance(person_id, int) and _session_is_fresh():
+        with _database().read() as db_session:
+            actor = people.active_actor(db_session, person_id)
+        if actor is None:
+            _forget_token()
+            return None
+        g.actor = actor
+        return actor
     token_id = session.get(TOKEN_ID_KEY)
     if not isinstance(token_id, int) or not _session_is_fresh():
         _forget_token()
         return None
     database = _database()
     with database.read() as db_session:
-        token = db_session.get(ApiToken, token_id)
-        if token is None or not tokens.is_live(token):
+        token = people.live_token(db_session, token_id)
+        if token is None:
             _forget_token()
             return None
         actor = Actor(name=token.name, role=token.role, token_id=token.id)

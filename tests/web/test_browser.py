@@ -1,83 +1,24 @@
 """The dashboard in a real headless browser: Debian's Chromium driven by Playwright.
 
-The app is served for real on a free localhost port; a coordinator signs in through the form,
-opens the candidate in review and signs it off; a second coordinator's sign-off confirms it.
-No browser is ever downloaded: the test uses /usr/bin/chromium and fails (CI sets
-CONFIRM_REQUIRE_BROWSER=1) or skips (elsewhere) when it is missing.
+The app is served for real on a free localhost port; a coordinator signs in with an API token
+(as a script would), opens the candidate in review and signs it off; a second coordinator's
+sign-off confirms it. Fixtures (server, browser) are in tests/web/conftest.py.
 """
 
 from __future__ import annotations
 
-import os
-import threading
-from collections.abc import Iterator
-from pathlib import Path
 from typing import Any
 from urllib.parse import urlsplit
-
-import pytest
-from werkzeug.serving import make_server
 
 from confirm_service.actor import SYSTEM
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.services.tokens import create_token
 from tests.services.test_candidate_flow import post_scenario
+from tests.web.conftest import CHROMIUM, CHROMIUM_ARGS
 
-CHROMIUM = Path("/usr/bin/chromium")
-CHROMIUM_ARGS = [
-    "--headless",
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-quic",
-    "--no-first-run",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-]
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # PNG specification (W3C, 3rd ed.), 5.2 PNG signature
 MIN_SCREENSHOT_BYTES = 20_000  # a full decision page; a blank page is a few kB (from memory)
 RATIONALE = "Reviewed the cadence, the drift check and the partner detection; all consistent."
-
-
-def _unavailable(reason: str) -> None:
-    if os.environ.get("CONFIRM_REQUIRE_BROWSER") == "1":
-        pytest.fail(f"CONFIRM_REQUIRE_BROWSER=1 but {reason}", pytrace=False)
-    pytest.skip(reason)
-
-
-@pytest.fixture
-def sync_playwright() -> Any:
-    if not CHROMIUM.exists():
-        _unavailable(f"{CHROMIUM} is missing (install Debian's package: apt-get install chromium)")
-    try:
-        from playwright.sync_api import sync_playwright
-    except ImportError:
-        _unavailable("the Python package playwright is not installed (pip install playwright)")
-    return sync_playwright
-
-
-@pytest.fixture
-def app(app: Any) -> Any:
-    """The conftest app with the dashboard registered (until the factory registers it)."""
-    from confirm_service.web import bp
-
-    if "dashboard" not in app.blueprints:
-        app.register_blueprint(bp)
-    return app
-
-
-@pytest.fixture
-def served(app: Any) -> Iterator[str]:
-    """The app on a free localhost port, served by werkzeug in a background thread."""
-    server = make_server("127.0.0.1", 0, app, threaded=True)
-    thread = threading.Thread(target=server.serve_forever, name="dashboard-server", daemon=True)
-    thread.start()
-    try:
-        yield f"http://127.0.0.1:{server.server_port}"
-    finally:
-        server.shutdown()
-        thread.join(timeout=10)
-        server.server_close()
 
 
 def _sign_in(page: Any, base: str, secret: str) -> None:
@@ -96,7 +37,7 @@ def _sign_off(page: Any) -> None:
 
 
 def test_two_coordinators_confirm_a_candidate_in_a_real_browser(
-    sync_playwright, served, client, auth, db, tokens, tmp_path
+    sync_playwright, served, client, auth, db, tokens, artefacts
 ):
     review = next(c for c in post_scenario(client, auth) if c["stage"] == "review")
     with db.write() as session:
@@ -139,7 +80,7 @@ def test_two_coordinators_confirm_a_candidate_in_a_real_browser(
             assert caution.is_visible()
             page.emulate_media(media="screen")
 
-            shot = tmp_path / "decision-screen.png"
+            shot = artefacts / "decision-screen.png"
             page.screenshot(path=str(shot), full_page=True)
             data = shot.read_bytes()
             assert data[:8] == PNG_SIGNATURE

@@ -286,9 +286,16 @@ def test_the_decision_screen_shows_the_caution_checks_and_plots(app, client, aut
     assert len(ids) == len(set(ids))  # HTML Living Standard 3.2.6.1: id unique in the document
     for target in re.findall(r'href="#([^"]+)"', body):
         assert target in ids, target  # every in-page link lands somewhere
-    # one inline SVG per site with linked detections (PRA and TFO), two panels each
-    assert body.count("<svg ") == 4
-    assert "Site PRA" in text and "Site TFO" in text
+    # three pictures, each an SVG image with a text alternative; the hit table names both sites
+    images = re.findall(r'<img src="([^"]+\.svg)"[^>]*alt="([^"]+)"', body)
+    assert [url.rsplit("/", 1)[-1] for url, _ in images] == [
+        "frequency.svg",
+        "drift.svg",
+        "elevation.svg",
+    ]
+    assert all(len(alt) > 40 for _, alt in images)
+    table = body[body.index("Text alternative of both pictures") :]
+    assert "<td>PRA</td>" in table and "<td>TFO</td>" in table
     assert "needs approvals from 2 distinct person(s) with role coordinator: 0 so far" in text
     assert viewer.get("/dashboard/candidates/999999").status_code == 404
 
