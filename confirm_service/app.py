@@ -19,6 +19,7 @@ def _blueprints() -> list[Any]:
     from confirm_service.api import (
         audit,
         candidates,
+        followups,
         meta,
         observations,
         physics,
@@ -32,6 +33,8 @@ def _blueprints() -> list[Any]:
         targets.bp,
         observations.bp,
         candidates.bp,
+        followups.bp,
+        followups.inbox,
         physics.bp,
         audit.bp,
         web.bp,

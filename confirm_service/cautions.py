@@ -17,3 +17,8 @@ SITE_SAFETY = (
     "follow-up request."
 )
 CANDIDATE_IS_NOT_A_DETECTION = f"{NOT_A_DETECTION} {PUBLIC_STATEMENTS} {SITE_SAFETY}"
+
+FOLLOWUP_EMBARGO = (
+    "Confidential: an unverified candidate under embargo. Share this request only with the "
+    "people who handle it at your site, and make no statement about it."
+)

@@ -8,8 +8,9 @@ the physics engine (the same hypothesis the checks test); the interference is no
 
 from __future__ import annotations
 
+import json
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
 from typing import Any
@@ -18,6 +19,7 @@ import numpy as np
 
 from confirm_service import physics
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
+from confirm_service.timeutil import utc_now
 
 SITES = [
     {
@@ -293,8 +295,10 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
             ("pipeline-tfo", "pipeline"),
             ("coordinator-a", "coordinator"),
             ("coordinator-b", "coordinator"),
+            ("site-tfo", "site"),
         ]:
-            _, secrets[name] = create_token(session, SYSTEM, name, role)
+            site_code = "TFO" if role == "site" else None
+            _, secrets[name] = create_token(session, SYSTEM, name, role, site_code)
     client = app.test_client()
 
     def call(method: str, path: str, who: str, body: Any = None) -> Any:
@@ -311,7 +315,8 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
         call("POST", "/api/v1/targets", "coordinator-a", target)
     say(f"registered {len(SITES)} sites and {len(TARGETS)} targets")
     detections = 0
-    for label, scan in scenario_scans():
+    *scans, (partner_label, partner_scan) = scenario_scans()
+    for label, scan in scans:
         who = "pipeline-tfo" if scan["site"] == "TFO" else "pipeline-pra"
         created = call("POST", "/api/v1/observations", who, scan)
         detections += created["detection_count"]
@@ -320,6 +325,7 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
             f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  "
             f"{created['detection_count']:3d} detections{new}"
         )
+    detections += partner_follow_up(app, call, say, partner_label, partner_scan)
     listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
     for summary in listing["items"]:
         if summary["stage"] == "review" and summary["state"] == "open":
@@ -347,6 +353,83 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     _write_and_check_dossier(app, result)
     app.extensions["confirm.db"].dispose()
     return result
+
+
+class PartnerReceiver:
+    """Stands in for a partner's webhook on 127.0.0.1: checks each signed request it gets."""
+
+    def __init__(self, secret: str) -> None:
+        import threading
+        from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
+
+        from confirm_service.followup import signing
+
+        self.received: list[dict[str, Any]] = []
+        receiver = self
+
+        class Handler(BaseHTTPRequestHandler):
+            def do_POST(self) -> None:  # noqa: N802 - http.server's naming
+                body = self.rfile.read(int(self.headers.get("Content-Length", "0")))
+                headers = {k: v for k, v in self.headers.items()}
+                signing.verify(secret, signing.envelope_of(headers), body)
+                receiver.received.append(json.loads(body))
+                answer = json.dumps({"acknowledged": True}).encode()
+                self.send_response(200)
+                self.send_header("Content-Type", "application/json")
+                self.send_header("Content-Length", str(len(answer)))
+                self.end_headers()
+                self.wfile.write(answer)
+
+            def log_message(self, *args: Any) -> None:
+                return
+
+        self.server = ThreadingHTTPServer(("127.0.0.1", 0), Handler)
+        self.thread = threading.Thread(target=self.server.serve_forever, daemon=True)
+        self.thread.start()
+        self.url = f"http://127.0.0.1:{self.server.server_address[1]}/hooks/confirm"
+
+    def close(self) -> None:
+        self.server.shutdown()
+        self.server.server_close()
+
+
+def partner_follow_up(
+    app: Any, call: Callable[..., Any], say: Callable[[str], None], label: str, scan: Any
+) -> int:
+    """The distant partner (TFO) receives the protocol's follow-up request, signed, at its
+    webhook (a local stand-in), observes, and reports its scan and hits against the request.
+    Returns the number of detections reported."""
+    from confirm_service.actor import SYSTEM
+    from confirm_service.scheduler.jobs import run_due
+    from confirm_service.services.federation import set_partner_secret
+
+    db = app.extensions["confirm.db"]
+    settings = app.extensions["confirm.settings"]
+    with db.write() as session:
+        secret = set_partner_secret(session, SYSTEM, "TFO")
+    receiver = PartnerReceiver(secret)
+    try:
+        call("PATCH", "/api/v1/sites/TFO", "coordinator-a", {"webhook_url": receiver.url})
+        run_due(db, replace(settings, followup_lead_time_s=30 * 86400.0), utc_now())
+    finally:
+        receiver.close()
+    (message,) = [m for m in receiver.received if m["content"]["site"] == "TFO"]
+    content = message["content"]
+    preferred = content["preferred_windows"]
+    say(
+        f"  follow-up request {message['request_id']} delivered, signed, to TFO: "
+        f"{len(content['windows'])} windows in {content['horizon']['start'][:10]}.."
+        f"{content['horizon']['end'][:10]}, {len(preferred)} discriminating"
+    )
+    if content["windows"]:
+        say(f"    {content['windows'][0]['why']}")
+    report = {"observation": scan, "detected": True, "threshold_snr": 10.0, "sefd_jy": 40.0}
+    call("POST", f"/api/v1/followups/{message['request_id']}/reports", "site-tfo", report)
+    say(
+        f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  "
+        f"{len(scan['detections']):3d} detections, reported on request {message['request_id']}"
+    )
+    return len(scan["detections"])
 
 
 def _write_and_check_dossier(app: Any, result: DemoResult) -> None:

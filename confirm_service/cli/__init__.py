@@ -25,6 +25,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "export": ("exchange", "Export scans and detections (CSV, JSON Lines, VOTable)."),
     "import": ("exchange", "Import scans and detections from a file."),
     "predict": ("physics", "Doppler prediction of a signal at a site and time."),
+    "partner": ("partners", "Shared secrets of partner sites for signed follow-up messages."),
     "protocol": ("protocol", "Confirmation protocol files."),
     "scheduler": ("scheduler", "The scheduler process (one per deployment)."),
     "serve": ("serve", "Serve the API and the web pages."),

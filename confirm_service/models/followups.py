@@ -130,6 +130,7 @@ class OutboundMessage(Base):
     created_at: Mapped[datetime] = mapped_column(default=utc_now)
     delivered_at: Mapped[datetime | None]
     dead_at: Mapped[datetime | None]
+    transition_id: Mapped[int | None] = mapped_column(ForeignKey("stage_transitions.id"))
 
 
 class ReceivedMessage(Base):

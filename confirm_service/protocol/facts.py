@@ -100,6 +100,12 @@ class ReportFact:
     frequency_min_hz: float
     frequency_max_hz: float
     duration_s: float
+    threshold_snr: float | None = None
+    """Detection threshold of the partner's search (signal-to-noise ratio)."""
+    sefd_jy: float | None = None
+    """System-equivalent flux density of the partner's receiver (Jy)."""
+    pointing_ra_deg: float | None = None
+    pointing_dec_deg: float | None = None
 
 
 @dataclass(frozen=True, slots=True)

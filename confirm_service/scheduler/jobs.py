@@ -98,21 +98,70 @@ class DueJob:
     run: JobFunction
 
 
-def _followup_job(name: str) -> JobFunction:
-    """A follow-up job by name, imported when it runs (the scheduler sits above services)."""
+def dispatch_intents(database: Database, settings: Settings, now: datetime) -> str:
+    """Turn the protocol's recorded intents into follow-up requests and notices."""
+    from confirm_service.services import followups
 
-    def run(database: Database, settings: Settings, now: datetime) -> str:
-        from confirm_service.followup import due
+    with database.read() as session:
+        ids = followups.intended_ids(session)
+    made = 0
+    for intent_id in ids:
+        with database.write() as session:
+            intent = followups.get_request(session, intent_id, lock=True)
+            if intent.status == "intended":
+                made += followups.dispatch_intent(session, SCHEDULER, settings, intent, now)
+    return f"{len(ids)} intent(s) dispatched, {made} request(s) or notice(s) made"
 
-        function: JobFunction = getattr(due, name)
-        return function(database, settings, now)
 
-    run.__name__ = name
-    return run
+def announce_stage_changes(database: Database, settings: Settings, now: datetime) -> str:
+    """Tell each new stage's contacts about recent stage and state changes."""
+    from confirm_service.services import notifications
+
+    with database.write() as session:
+        count = notifications.notify_stage_changes(session, SCHEDULER, settings, now)
+    return f"{count} notice(s) queued"
+
+
+def send_due_requests(database: Database, settings: Settings, now: datetime) -> str:
+    """Requests whose send time (first window's opening minus the lead time) has come."""
+    from confirm_service.services import followups
+
+    with database.read() as session:
+        ids = followups.due_to_send_ids(session, now)
+    outcomes: dict[str, int] = {}
+    for request_id in ids:
+        with database.write() as session:
+            outcome = followups.send(session, SCHEDULER, settings, request_id, now)
+        outcomes[outcome] = outcomes.get(outcome, 0) + 1
+    return f"{len(ids)} request(s) due: " + (
+        ", ".join(f"{n} {what}" for what, n in sorted(outcomes.items())) or "none"
+    )
+
+
+def deliver_messages(database: Database, settings: Settings, now: datetime) -> str:
+    """Every message whose next try is due; failures back off exponentially, with jitter."""
+    from confirm_service.services import followups, messages
+
+    counts = messages.deliver_due(database, settings, SCHEDULER, now, followups.on_delivery_result)
+    return ", ".join(f"{n} {status}" for status, n in counts.items())
+
+
+def expire_requests(database: Database, settings: Settings, now: datetime) -> str:
+    """Open requests past their deadline expire; reported ones of decided candidates close."""
+    from confirm_service.services import followups
+
+    with database.write() as session:
+        expired, closed = followups.expire_due(session, SCHEDULER, now)
+    return f"{expired} expired, {closed} closed"
 
 
 JOBS: tuple[DueJob, ...] = (
     DueJob("deadlines", 5, sweep_deadlines),
+    DueJob("intents", 1, dispatch_intents),
+    DueJob("stage-notices", 1, announce_stage_changes),
+    DueJob("send-requests", 1, send_due_requests),
+    DueJob("deliveries", 1, deliver_messages),
+    DueJob("expiry", 5, expire_requests),
     DueJob("stale-scans", 5, close_stale_scans),
     DueJob("checkpoint", 60, scheduled_checkpoint),
 )

@@ -4,17 +4,12 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, StrictBool, model_validator
-from pydantic_core import PydanticCustomError
+from pydantic import BaseModel, ConfigDict, Field
 
-from confirm_service.schemas.bounds import (
-    DriftHzS,
-    DurationS,
-    FrequencyHz,
-    ObservationTime,
-    RowId,
-)
+from confirm_service.schemas.bounds import RowId
 from confirm_service.schemas.common import StrictModel, UtcIso
+from confirm_service.schemas.followups import ReportIn as ReportIn  # the report contract
+from confirm_service.schemas.followups import ReportOut as ReportOut  # lives with follow-ups
 
 Text = Annotated[str, Field(min_length=1, max_length=10_000)]
 
@@ -95,42 +90,6 @@ class FollowUpOut(BaseModel):
     site: str | None
     payload: dict[str, Any]
     created_at: UtcIso
-
-
-class ReportIn(StrictModel):
-    """A partner site's report: it observed the target and did or did not see the signal."""
-
-    site: Annotated[str, Field(min_length=1, max_length=32)]
-    observed_at: ObservationTime
-    duration_s: DurationS
-    detected: StrictBool
-    frequency_hz: FrequencyHz | None = None
-    drift_hz_s: DriftHzS | None = None
-    frequency_min_hz: FrequencyHz
-    frequency_max_hz: FrequencyHz
-    notes: Annotated[str, Field(max_length=10_000)] | None = None
-
-    @model_validator(mode="after")
-    def _consistent(self) -> ReportIn:
-        if self.frequency_max_hz <= self.frequency_min_hz:
-            raise PydanticCustomError("band", "frequency_max_hz must exceed frequency_min_hz")
-        if self.detected and (self.frequency_hz is None or self.drift_hz_s is None):
-            raise PydanticCustomError("detected", "a detection needs frequency_hz and drift_hz_s")
-        return self
-
-
-class ReportOut(BaseModel):
-    id: int
-    site: str
-    observed_at: UtcIso
-    duration_s: float
-    detected: bool
-    frequency_hz: float | None
-    drift_hz_s: float | None
-    frequency_min_hz: float
-    frequency_max_hz: float
-    notes: str | None
-    received_at: UtcIso
 
 
 class CandidateSummary(BaseModel):

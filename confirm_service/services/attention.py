@@ -11,21 +11,26 @@ from dataclasses import dataclass, field
 from datetime import datetime, timedelta
 from typing import Any
 
-from sqlalchemy import func, select
+from sqlalchemy import and_, func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
-from confirm_service.models import Candidate, CheckResult, FollowUpRequest, Site
+from confirm_service.models import Candidate, CheckResult, FollowUpRequest, OutboundMessage, Site
 from confirm_service.protocol import SignoffStatus, signoff_statuses
 from confirm_service.schemas.candidates import CandidateSummary
 from confirm_service.services import candidate_views, facts
 from confirm_service.services.protocols import protocol_for
+from confirm_service.timeutil import utc_now
 
 DEADLINE_HORIZON = timedelta(days=1)
 OPEN_CANDIDATES_EXAMINED = 500
 """Open candidates looked at per request, oldest first (beyond this the list says so)."""
-UNDELIVERED_STATUSES = ("failed", "dead_letter", "dead-lettered", "undeliverable")
+UNDELIVERED_STATUSES = ("failed", "expired")
+"""Request states that need a person: delivery given up, or no report before the deadline."""
+WAITING_STATUSES = ("drafted", "sent", "acknowledged")
+DEAD_MESSAGE = "dead"
 INCONCLUSIVE = "inconclusive"
+OPEN_NOW_SHOWN = 5
 
 
 @dataclass(frozen=True)
@@ -38,7 +43,7 @@ class AttentionItem:
 @dataclass(frozen=True)
 class StuckFollowUp:
     request_id: int
-    candidate_id: int
+    candidate_id: int | None
     site: str | None
     status: str
     attempts: int
@@ -52,6 +57,8 @@ class Attention:
     due_soon: list[AttentionItem] = field(default_factory=list)
     followups: list[StuckFollowUp] = field(default_factory=list)
     inconclusive: list[AttentionItem] = field(default_factory=list)
+    open_now: list[AttentionItem] = field(default_factory=list)
+    """The most recently updated open candidates (context, not counted in ``total``)."""
     more_open_than_examined: bool = False
 
     @property
@@ -141,23 +148,65 @@ def attention_for(session: Session, actor: Actor, now: datetime) -> Attention:
                 late = "past its deadline" if due <= now else "deadline within a day"
                 found.due_soon.append(AttentionItem(summary, f"stage {stage.name}: {late}", due))
     found.due_soon.sort(key=lambda item: item.due_at or now)
-    found.followups = undelivered_followups(session)
+    latest = sorted(open_rows[:OPEN_CANDIDATES_EXAMINED], key=lambda c: c.updated_at, reverse=True)
+    found.open_now = [
+        AttentionItem(
+            candidate_views.summary(session, c), f"updated {c.updated_at:%Y-%m-%d %H:%M} UTC"
+        )
+        for c in latest[:OPEN_NOW_SHOWN]
+    ]
+    found.followups = undelivered_followups(session, now)
     found.inconclusive = _inconclusive(session)
     return found
 
 
-def undelivered_followups(session: Session) -> list[StuckFollowUp]:
-    """Follow-up requests whose delivery failed or was given up."""
+def undelivered_followups(session: Session, now: datetime | None = None) -> list[StuckFollowUp]:
+    """Follow-up requests whose delivery failed, that expired, or whose deadline passed while
+    waiting for the partner; and messages given up after their retries (dead letters)."""
+    now = now or utc_now()
     rows = session.execute(
         select(FollowUpRequest, Site.code)
         .outerjoin(Site, Site.id == FollowUpRequest.site_id)
-        .where(FollowUpRequest.status.in_(UNDELIVERED_STATUSES))
+        .where(
+            or_(
+                FollowUpRequest.status.in_(UNDELIVERED_STATUSES),
+                and_(
+                    FollowUpRequest.status.in_(WAITING_STATUSES),
+                    FollowUpRequest.deadline.is_not(None),
+                    FollowUpRequest.deadline < now,
+                ),
+            )
+        )
         .order_by(FollowUpRequest.id)
     ).all()
-    return [
-        StuckFollowUp(r.id, r.candidate_id, code, r.status, r.attempts, r.last_error)
+    stuck = [
+        StuckFollowUp(
+            r.id,
+            r.candidate_id,
+            code,
+            r.status if r.status in UNDELIVERED_STATUSES else f"{r.status}, deadline passed",
+            r.attempts,
+            r.last_error or r.state_reason,
+        )
         for r, code in rows
     ]
+    dead = session.execute(
+        select(OutboundMessage)
+        .where(OutboundMessage.status == DEAD_MESSAGE)
+        .order_by(OutboundMessage.id)
+    ).scalars()
+    stuck += [
+        StuckFollowUp(
+            m.request_id or 0,
+            m.candidate_id,
+            m.destination,
+            f"message {m.id} ({m.kind}) given up",
+            m.attempts,
+            m.last_error,
+        )
+        for m in dead
+    ]
+    return stuck
 
 
 def _inconclusive(session: Session) -> list[AttentionItem]:

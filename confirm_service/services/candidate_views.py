@@ -217,6 +217,9 @@ def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
     return ReportOut(
         id=report.id,
         site=site_code,
+        request_id=report.request_id,
+        observed=report.observed,
+        not_observed_reason=report.not_observed_reason,
         observed_at=report.observed_at,
         duration_s=report.duration_s,
         detected=report.detected,
@@ -224,6 +227,11 @@ def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
         drift_hz_s=report.drift_hz_s,
         frequency_min_hz=report.frequency_min_hz,
         frequency_max_hz=report.frequency_max_hz,
+        threshold_snr=report.threshold_snr,
+        sefd_jy=report.sefd_jy,
+        pointing_ra_deg=report.pointing_ra_deg,
+        pointing_dec_deg=report.pointing_dec_deg,
+        observation_id=report.observation_id,
         notes=report.notes,
         received_at=report.received_at,
     )

@@ -232,10 +232,16 @@ def detections_in_windows(
 
 
 def report_facts(session: Session, candidate_id: int) -> tuple[ReportFact, ...]:
+    """Reports that are evidence of their own: looks that happened and whose scan is not in
+    the log (a report carrying its scan is counted once, through that scan)."""
     rows = session.execute(
         select(FollowUpReport, Site)
         .join(Site, Site.id == FollowUpReport.site_id)
-        .where(FollowUpReport.candidate_id == candidate_id)
+        .where(
+            FollowUpReport.candidate_id == candidate_id,
+            FollowUpReport.observed.is_(True),
+            FollowUpReport.observation_id.is_(None),
+        )
         .order_by(FollowUpReport.id)
     ).all()
     return tuple(
@@ -249,6 +255,10 @@ def report_facts(session: Session, candidate_id: int) -> tuple[ReportFact, ...]:
             frequency_min_hz=report.frequency_min_hz,
             frequency_max_hz=report.frequency_max_hz,
             duration_s=report.duration_s,
+            threshold_snr=report.threshold_snr,
+            sefd_jy=report.sefd_jy,
+            pointing_ra_deg=report.pointing_ra_deg,
+            pointing_dec_deg=report.pointing_dec_deg,
         )
         for report, site in rows
     )

@@ -14,7 +14,7 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from confirm_service.models import FollowUpRequest, Site
+from confirm_service.models import FollowUpRequest, OutboundMessage, Site
 
 RECENT_REQUESTS = 200
 
@@ -22,7 +22,7 @@ RECENT_REQUESTS = 200
 @dataclass(frozen=True)
 class RequestRow:
     id: int
-    candidate_id: int
+    candidate_id: int | None
     kind: str
     stage: str
     site: str | None
@@ -31,6 +31,7 @@ class RequestRow:
     last_error: str | None
     created_at: datetime
     sent_at: datetime | None
+    deadline: datetime | None
 
 
 def recent_requests(session: Session, limit: int = RECENT_REQUESTS) -> list[RequestRow]:
@@ -53,9 +54,67 @@ def recent_requests(session: Session, limit: int = RECENT_REQUESTS) -> list[Requ
             r.last_error,
             r.created_at,
             r.sent_at,
+            r.deadline,
         )
         for r, code in rows
     ]
+
+
+@dataclass(frozen=True)
+class MessageRow:
+    id: int
+    request_id: int | None
+    candidate_id: int | None
+    kind: str
+    channel: str
+    destination: str
+    status: str
+    attempts: int
+    next_attempt_at: datetime | None
+    last_error: str | None
+    created_at: datetime
+
+
+def undelivered_messages(session: Session, limit: int = RECENT_REQUESTS) -> list[MessageRow]:
+    """Messages still retrying or given up (dead letters), oldest first."""
+    rows = session.execute(
+        select(OutboundMessage)
+        .where(OutboundMessage.status.in_(("retrying", "dead")))
+        .order_by(OutboundMessage.id)
+        .limit(limit)
+    ).scalars()
+    return [
+        MessageRow(
+            m.id,
+            m.request_id,
+            m.candidate_id,
+            m.kind,
+            m.channel,
+            m.destination,
+            m.status,
+            m.attempts,
+            m.next_attempt_at,
+            m.last_error,
+            m.created_at,
+        )
+        for m in rows
+    ]
+
+
+def resend_operations() -> dict[str, Any]:
+    """The follow-up service's re-send functions that are installed: ``request``, ``message``."""
+    found = {}
+    for key, module, name in (
+        ("request", "confirm_service.services.followups", "resend_request"),
+        ("message", "confirm_service.services.messages", "resend"),
+    ):
+        try:
+            function = getattr(importlib.import_module(module), name, None)
+        except ImportError:
+            function = None
+        if function is not None:
+            found[key] = function
+    return found
 
 
 def screening_counts(session: Session) -> Any:

@@ -142,7 +142,7 @@ _elevation_cache = _RecentResults(32)
 
 
 def _database_key(session: Session) -> str:
-    return str(session.get_bind().url)
+    return str(session.get_bind().engine.url)
 
 
 def candidate_tracks(session: Session, candidate_id: int) -> CandidateTracks:

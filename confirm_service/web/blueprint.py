@@ -60,7 +60,7 @@ def settings() -> Any:
 
 @bp.record_once
 def _configure(state: BlueprintSetupState) -> None:
-    auth.configure_app(state.app)
+    auth.configure_app(state.app)  # type: ignore[arg-type]  # a Flask app, typed as sansio App
     state.app.before_request(_routing_error_as_page)
 
 

@@ -38,6 +38,10 @@ def _query(filters: dict[str, str], limit: int) -> CandidateQuery:
         abort(400, description=f"the search was refused ({where})")
 
 
+def _as_values(filters: dict[str, str]) -> dict[str, Any]:
+    return dict(filters)
+
+
 def _state_counts(by_state_stage: dict[tuple[str, str], int]) -> dict[str, int]:
     counts = dict.fromkeys(STATES, 0)
     for (state, _stage), number in by_state_stage.items():
@@ -62,7 +66,8 @@ def candidates() -> Any:
     counts = _state_counts(by_state_stage)
     next_url = None
     if len(rows) > LIST_LIMIT:
-        next_url = url_for(".candidates", **filters, after=shown[-1].id)
+        paged: dict[str, Any] = {**filters, "after": shown[-1].id}
+        next_url = url_for(".candidates", **paged)
     stages = sorted({stage for _state, stage in by_state_stage})
     return render_template(
         "overview.html",
@@ -78,7 +83,7 @@ def candidates() -> Any:
         sites=sites,
         next_url=next_url,
         first_page=query.after == 0,
-        export_url=url_for(".candidates_csv", **filters),
+        export_url=url_for(".candidates_csv", **_as_values(filters)),
     )
 
 

@@ -41,6 +41,16 @@ EXPECTED_ROLES = {
     ("GET", "/api/v1/audit/consistency"): ALL,
     ("GET", "/api/v1/audit/public-key"): ALL,
     ("GET", "/api/v1/visibility"): ALL,
+    ("POST", "/api/v1/candidates/<int:candidate_id>/followups"): {"coordinator", "admin"},
+    ("GET", "/api/v1/candidates/<int:candidate_id>/messages"): ALL,
+    ("GET", "/api/v1/followups"): ALL,
+    ("GET", "/api/v1/followups/<int:request_id>"): ALL,
+    ("POST", "/api/v1/followups/<int:request_id>/reports"): {"site", "coordinator", "admin"},
+    ("POST", "/api/v1/followups/<int:request_id>/acknowledge"): {"site", "coordinator", "admin"},
+    ("POST", "/api/v1/followups/<int:request_id>/decline"): {"site", "coordinator", "admin"},
+    ("POST", "/api/v1/followups/<int:request_id>/resend"): {"coordinator", "admin"},
+    ("GET", "/api/v1/messages"): {"coordinator", "admin"},
+    ("POST", "/api/v1/messages/<int:message_pk>/resend"): {"coordinator", "admin"},
 }
 
 

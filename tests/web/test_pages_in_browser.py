@@ -78,7 +78,7 @@ def test_a_coordinators_day_in_a_real_browser(sync_playwright, served, client, a
                 context = _context(browser, viewport, origin, foreign)
                 page = context.new_page()
                 _sign_in(page, served, "ada.quill")
-                waiting = page.locator("#attention").get_by_role(
+                waiting = page.locator("section[aria-labelledby=att-signoff]").get_by_role(
                     "link", name=f"Candidate {review['id']}:"
                 )
                 assert waiting.count() == 1
@@ -90,7 +90,7 @@ def test_a_coordinators_day_in_a_real_browser(sync_playwright, served, client, a
             context = _context(browser, DESK, origin, foreign)
             page = context.new_page()
             _sign_in(page, served, "ada.quill")
-            page.locator("#attention").get_by_role(
+            page.locator("section[aria-labelledby=att-signoff]").get_by_role(
                 "link", name=f"Candidate {review['id']}:"
             ).click()
             assert urlsplit(page.url).path == f"/dashboard/candidates/{review['id']}"

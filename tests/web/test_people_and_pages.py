@@ -233,3 +233,57 @@ def test_sites_followups_screening_and_audit_pages(app, client, auth, tokens):
     assert viewer.get("/dashboard/screening").status_code == 200
     audit = viewer.get("/dashboard/audit?verify=1")
     assert audit.status_code == 200 and "✓ intact" in page_text(audit)
+
+
+def test_undelivered_followups_need_a_person(app, client, auth, db, tokens):
+    from confirm_service.models import FollowUpRequest, OutboundMessage
+    from confirm_service.services.followup_views import resend_operations
+    from confirm_service.timeutil import utc_now
+    from tests.web.test_dashboard import signed_in
+
+    review = next(c for c in post_scenario(client, auth) if c["stage"] == "review")
+    with db.write() as session:
+        failed = FollowUpRequest(
+            intent_key="test/failed",
+            candidate_id=review["id"],
+            stage="review",
+            status="failed",
+            attempts=5,
+            last_error="HTTP 503 from the partner",
+        )
+        session.add(failed)
+        session.flush()
+        session.add(
+            OutboundMessage(
+                message_id="m-test-1",
+                kind="followup.request",
+                channel="webhook",
+                destination="https://partner.example/hook",
+                request_id=failed.id,
+                candidate_id=review["id"],
+                subject="request",
+                status="dead",
+                attempts=5,
+                last_error="connection refused",
+                dead_at=utc_now(),
+            )
+        )
+        failed_id = failed.id
+    coordinator = signed_in(app, tokens["coordinator"])
+    overview = coordinator.get("/dashboard").text
+    group = overview[overview.index('id="att-followups"') : overview.index('id="att-inconclusive"')]
+    assert f"Request {failed_id} to contacts" in group and "HTTP 503 from the partner" in group
+    assert "connection refused" in group  # the dead letter too
+    page = coordinator.get("/dashboard/follow-ups")
+    text = page_text(page)
+    assert "✗ dead letter" in text and "https://partner.example/hook" in text
+    available = resend_operations()
+    assert (f"Re-send request {failed_id}" in text) == ("request" in available)
+    if "request" not in available:  # the delivery service is not installed: a page, not JSON
+        refused = coordinator.post(
+            f"/dashboard/follow-ups/requests/{failed_id}/resend",
+            data={"csrf_token": csrf_of(page)},
+        )
+        assert refused.status_code == 404 and refused.mimetype == "text/html"
+    viewer = signed_in(app, tokens["viewer"])
+    assert "Re-send" not in page_text(viewer.get("/dashboard/follow-ups"))
