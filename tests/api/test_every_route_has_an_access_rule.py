@@ -5,9 +5,10 @@ from __future__ import annotations
 from confirm_service.models import ROLES
 
 # Public on purpose: health for load balancers and monitors, static files, the sign-in form (a
-# token is what it asks for) and sign-out (it only forgets the session; CSRF-checked).
+# token is what it asks for), sign-out (it only forgets the session; CSRF-checked), and the
+# partners' inbox, where each message's signature authenticates it instead of a bearer token.
 PUBLIC_ENDPOINTS = {"meta.healthz", "static", "dashboard.static", "dashboard.sign_in"}
-PUBLIC_ENDPOINTS |= {"dashboard.sign_out"}
+PUBLIC_ENDPOINTS |= {"dashboard.sign_out", "federation.receive"}
 
 
 def unguarded_routes(app) -> list[str]:
