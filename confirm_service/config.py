@@ -48,6 +48,7 @@ class Settings:
     clock_skew_allowance_s: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 300.0
     service_origin: str = "confirm-service"
     checkpoint_interval_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 3600.0
+    scan_quiet_period_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 1800.0
     secret_key: str = field(default="", repr=False)
     scheduler_tick_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 60.0
     scheduler_standby_poll_s: Annotated[float, Field(gt=0, allow_inf_nan=False)] = 5.0

@@ -129,16 +129,23 @@ def first_window(
 class SkyFixedSignal:
     """The invented transmitter, predicted at any site and time by the physics engine."""
 
-    def __init__(self, site: dict[str, Any], target: dict[str, Any], at: datetime) -> None:
+    def __init__(
+        self,
+        site: dict[str, Any],
+        target: dict[str, Any],
+        at: datetime,
+        frequency_hz: float = SKY_FIXED_HZ,
+        residual_drift_hz_s: float = SKY_FIXED_RESIDUAL_HZ_S,
+    ) -> None:
         self.target = _coord(target)
         location = _location(site)
         earth = float(
             np.ravel(
-                physics.earth_drift_hz_s(location, self.target, physics.utc_time(at), SKY_FIXED_HZ)
+                physics.earth_drift_hz_s(location, self.target, physics.utc_time(at), frequency_hz)
             )[0]
         )
         self.reference = physics.SignalMeasurement(
-            location, at.timestamp(), SKY_FIXED_HZ, earth + SKY_FIXED_RESIDUAL_HZ_S
+            location, at.timestamp(), frequency_hz, earth + residual_drift_hz_s
         )
 
     def seen_at(self, site: dict[str, Any], at: datetime, snr: float) -> dict[str, float]:
@@ -274,6 +281,29 @@ def scenario_scans() -> list[tuple[str, dict[str, Any]]]:
     return scans
 
 
+def post_like_a_pipeline(
+    call: Callable[..., Any], who: str, scan: dict[str, Any]
+) -> dict[str, Any]:
+    """Register the scan, send its hits in two batches, the last one closing the scan."""
+    hits = scan["detections"]
+    created = call("POST", "/api/v1/observations", who, {**scan, "detections": []})
+    half = len(hits) // 2
+    path = f"/api/v1/observations/{created['id']}/detections"
+    first = call("POST", path, who, {"detections": hits[:half]})
+    last = call("POST", path, who, {"detections": hits[half:], "complete": True})
+    return {"id": created["id"], "candidate_ids": first["candidate_ids"] + last["candidate_ids"]}
+
+
+def screening_line(call: Callable[..., Any], posted: dict[str, Any]) -> str:
+    """One line on what screening made of a scan's hits."""
+    counts = call("GET", f"/api/v1/observations/{posted['id']}/screening", "coordinator-a")
+    reasons = ", ".join(f"{name} {n}" for name, n in counts["reasons"].items())
+    if counts["pending"]:
+        reasons += f", pending {counts['pending']} (waiting for the cadence's other scans)"
+    new = f"; new candidates {posted['candidate_ids']}" if posted["candidate_ids"] else ""
+    return f"{counts['detection_count']:3d} hits: {reasons}{new}"
+
+
 def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     """Create a fresh SQLite database in ``folder`` and run the scenario through the API."""
     from confirm_service.actor import SYSTEM
@@ -318,13 +348,9 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     *scans, (partner_label, partner_scan) = scenario_scans()
     for label, scan in scans:
         who = "pipeline-tfo" if scan["site"] == "TFO" else "pipeline-pra"
-        created = call("POST", "/api/v1/observations", who, scan)
-        detections += created["detection_count"]
-        new = f", new candidates {created['candidate_ids']}" if created["candidate_ids"] else ""
-        say(
-            f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  "
-            f"{created['detection_count']:3d} detections{new}"
-        )
+        detections += len(scan["detections"])
+        new = post_like_a_pipeline(call, who, scan)
+        say(f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  {screening_line(call, new)}")
     detections += partner_follow_up(app, call, say, partner_label, partner_scan)
     listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
     for summary in listing["items"]:

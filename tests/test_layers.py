@@ -17,7 +17,7 @@ SOURCE = ROOT / PACKAGE
 
 # Bottom to top. Each entry names top-level modules or packages of confirm_service.
 LAYERS: tuple[tuple[str, ...], ...] = (
-    ("timeutil", "cautions", "actor", "errors", "config"),
+    ("timeutil", "cautions", "actor", "errors", "states", "config"),
     ("models", "db", "schemas", "physics"),
     ("protocol",),
     ("audit",),
@@ -27,6 +27,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("api", "web", "scheduler", "migrations"),
     ("app",),
     ("demo", "wsgi", "serving"),
+    ("synthetic",),
     ("cli",),
 )
 

@@ -17,7 +17,7 @@ from sqlalchemy import select
 from confirm_service.audit.checkpoints import latest_checkpoint
 from confirm_service.cli import main
 from confirm_service.cli.context import settings as cli_settings
-from confirm_service.demo import SITES, TARGETS, scenario_scans
+from confirm_service.demo import SITES, SKY_FIXED_HZ, TARGETS, scenario_scans
 from confirm_service.models import SchedulerRun
 from confirm_service.scheduler.jobs import checkpoint_if_grown, run_due
 from confirm_service.scheduler.leader import LeaderLock
@@ -57,6 +57,9 @@ def _screening_candidate(client, auth):
     for target in TARGETS:
         client.post("/api/v1/targets", json=target, headers=auth("coordinator"))
     _, first_scan = scenario_scans()[0]
+    for hit in first_scan["detections"]:  # the pipeline flags the sky-fixed hit itself
+        if abs(hit["frequency_hz"] - SKY_FIXED_HZ) < 1e3:
+            hit["candidate"] = True
     created = client.post("/api/v1/observations", json=first_scan, headers=auth("pipeline"))
     assert created.status_code == 201, created.get_json()
     listing = client.get("/api/v1/candidates?state=open", headers=auth("viewer")).get_json()

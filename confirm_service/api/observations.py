@@ -29,6 +29,7 @@ from confirm_service.schemas.log import (
     DetectionOut,
     ObservationIn,
     ObservationOut,
+    ScreeningCountsOut,
 )
 from confirm_service.schemas.queries import ListQuery, ObservationQuery
 from confirm_service.services import access, idempotency
@@ -161,13 +162,46 @@ def ingest_detections(observation_id: int) -> Response:
             batch["detections"],
             config.max_batch_detections,
             body_sha256(),
+            complete=batch.get("complete", False),
         )
         body = {
             "observation_id": observation_id,
             "count": len(ids),
             "ids": ids,
+            "complete": batch.get("complete", False),
             "candidate_ids": candidate_ids,
         }
         return 201, body
 
     return _idempotent(produce)
+
+
+@bp.post("/<int:observation_id>/complete")
+@documented(
+    "Mark a scan complete: every hit is in; its cadence is screened now",
+    response=ObservationOut,
+    headers=IDEMPOTENCY_HEADER,
+    error_statuses=(401, 403, 404, 409),
+)
+@roles(*access.INGEST)
+def complete_observation(observation_id: int) -> Response:
+    def produce(session: Any) -> tuple[int, dict[str, Any]]:
+        candidate_ids = service.complete_observation(session, current_actor(), observation_id)
+        observation = service.get_observation(session, observation_id)
+        return 200, observation_model(observation, candidate_ids=candidate_ids).model_dump(
+            mode="json"
+        )
+
+    return _idempotent(produce)
+
+
+@bp.get("/<int:observation_id>/screening")
+@documented(
+    "A scan's hits by screening outcome (reason codes and counts)",
+    response=ScreeningCountsOut,
+    error_statuses=(401, 403, 404),
+)
+@roles(*READ_ROLES)
+def screening_counts(observation_id: int) -> Response:
+    with database().read() as session:
+        return json_response(service.screening_counts(session, observation_id))

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from datetime import timedelta
+from typing import Any
 
 from confirm_service.models import Detection, Observation, Site, Target
 from confirm_service.schemas.log import DetectionOut, ObservationOut, SiteOut, TargetOut
@@ -20,7 +21,7 @@ def detection_out(detection: Detection) -> dict:
     return DetectionOut.model_validate(detection).model_dump(mode="json")
 
 
-def observation_model(observation: Observation, **extra: object) -> ObservationOut:
+def observation_model(observation: Observation, **extra: Any) -> ObservationOut:
     return ObservationOut(
         id=observation.id,
         site=observation.site.code,
@@ -40,6 +41,9 @@ def observation_model(observation: Observation, **extra: object) -> ObservationO
         pipeline_run=observation.pipeline_run,
         detection_count=observation.detection_count,
         created_at=observation.created_at,
+        complete=observation.completed_at is not None,
+        completed_at=observation.completed_at,
+        completed_by=observation.completed_by,
         **extra,
     )
 

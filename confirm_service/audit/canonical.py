@@ -34,9 +34,9 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from decimal import Decimal
-from typing import Any
+from typing import Any, TypeVar
 
 __all__ = ["MAX_SAFE_INTEGER", "canonical_json", "ecmascript_number_text", "sha256_hex"]
 
@@ -60,6 +60,9 @@ def canonical_json(obj: Any) -> bytes:
 def sha256_hex(data: bytes) -> str:
     """Lowercase hex SHA-256 digest of ``data``."""
     return hashlib.sha256(data).hexdigest()
+
+
+_Container = TypeVar("_Container", Mapping[Any, Any], list[Any] | tuple[Any, ...])
 
 
 def _write_value(value: Any, parts: list[str], path: str, open_containers: set[int]) -> None:
@@ -86,7 +89,13 @@ def _write_value(value: Any, parts: list[str], path: str, open_containers: set[i
         )
 
 
-def _write_container(value, parts, path, open_containers, writer) -> None:
+def _write_container(
+    value: _Container,
+    parts: list[str],
+    path: str,
+    open_containers: set[int],
+    writer: Callable[[_Container, list[str], str, set[int]], None],
+) -> None:
     marker = id(value)
     if marker in open_containers:
         raise ValueError(f"{path}: container refers to itself")

@@ -8,9 +8,9 @@ canonical JSON text, or as ``{"sha256": ..., ...}`` for bulk data.
 from __future__ import annotations
 
 from datetime import datetime
-from typing import Any
+from typing import Any, cast
 
-from sqlalchemy import insert, select, update
+from sqlalchemy import Table, insert, select, update
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
@@ -45,13 +45,14 @@ def leaf_hash_of(entry: AuditEntry) -> bytes:
     return leaf_hash(raw)
 
 
+_HEAD_TABLE = cast(Table, AuditHead.__table__)
 _ADVANCE_HEAD = (
-    update(AuditHead.__table__)
-    .where(AuditHead.__table__.c.id == 1)
-    .values(size=AuditHead.__table__.c.size + 1)
-    .returning(AuditHead.__table__.c.size)
+    update(_HEAD_TABLE)
+    .where(_HEAD_TABLE.c.id == 1)
+    .values(size=_HEAD_TABLE.c.size + 1)
+    .returning(_HEAD_TABLE.c.size)
 )
-_INSERT_ENTRY = insert(AuditEntry.__table__)
+_INSERT_ENTRY = insert(cast(Table, AuditEntry.__table__))
 
 
 def _next_seq(session: Session) -> int:

@@ -24,7 +24,7 @@ import hashlib
 import hmac
 import re
 from collections.abc import Iterable, Mapping, Sequence
-from typing import Any
+from typing import Any, TypeGuard
 
 __all__ = [
     "EMPTY_ROOT",
@@ -320,7 +320,7 @@ def _is_hash(value: object) -> bool:
     return isinstance(value, bytes) and len(value) == HASH_SIZE
 
 
-def _is_int(value: object) -> bool:
+def _is_int(value: object) -> TypeGuard[int]:
     return isinstance(value, int) and not isinstance(value, bool)
 
 

@@ -28,6 +28,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "partner": ("partners", "Shared secrets of partner sites for signed follow-up messages."),
     "protocol": ("protocol", "Confirmation protocol files."),
     "scheduler": ("scheduler", "The scheduler process (one per deployment)."),
+    "screening": ("screening", "Hits screened out, with their reasons; replay of screening runs."),
     "serve": ("serve", "Serve the API and the web pages."),
     "sites": ("sites", "Telescope sites: list, show, add, edit."),
     "targets": ("targets", "Sky targets: list, show, add, edit."),

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 from datetime import datetime
+from typing import Any
 
 import click
 
@@ -11,6 +12,7 @@ from confirm_service.cli import main
 from confirm_service.cli.context import open_database
 from confirm_service.errors import Invalid
 from confirm_service.services import sky
+from confirm_service.timeutil import is_aware, parse_iso_time
 
 
 def parse_time(value: str | None, field: str) -> datetime | None:
@@ -18,18 +20,18 @@ def parse_time(value: str | None, field: str) -> datetime | None:
     if value is None:
         return None
     try:
-        parsed = datetime.fromisoformat(value)
+        parsed = parse_iso_time(value)
     except ValueError:
         raise Invalid("bad time", [(field, f"{value!r} is not ISO 8601")]) from None
-    if parsed.tzinfo is None:
+    if not is_aware(parsed):
         raise Invalid("naive time", [(field, "needs a time-zone offset, e.g. +00:00")])
     return parsed
 
 
-def site_options(prefix: str, label: str):  # type: ignore[no-untyped-def]
+def site_options(prefix: str, label: str):
     dash = prefix.replace("_", "-")
 
-    def decorate(command):  # type: ignore[no-untyped-def]
+    def decorate(command):
         for option in reversed(
             [
                 click.option(f"--{dash}", f"{prefix}", default=None, help=f"{label}: site code"),
@@ -62,7 +64,7 @@ def site_options(prefix: str, label: str):  # type: ignore[no-untyped-def]
     return decorate
 
 
-def target_options(command):  # type: ignore[no-untyped-def]
+def target_options(command):
     command = click.option("--dec", type=float, default=None, help="ICRS declination, deg")(command)
     command = click.option("--ra", type=float, default=None, help="ICRS right ascension, deg")(
         command
@@ -70,15 +72,15 @@ def target_options(command):  # type: ignore[no-untyped-def]
     return click.option("--target", default=None, help="registered target name")(command)
 
 
-def _database_if_needed(*names: str | None):  # type: ignore[no-untyped-def]
+def _database_if_needed(*names: str | None):
     return open_database() if any(names) else None
 
 
-def _resolve(database, kind, *args):  # type: ignore[no-untyped-def]
+def _resolve(database, kind, *args):
     if database is None:
         if kind == "site":
-            return sky.resolve_site(None, None, *args)  # type: ignore[arg-type]
-        return sky.resolve_target(None, None, *args)  # type: ignore[arg-type]
+            return sky.resolve_site(None, None, *args)
+        return sky.resolve_target(None, None, *args)
     with database.read() as session:
         if kind == "site":
             return sky.resolve_site(session, *args)
@@ -103,7 +105,7 @@ def predict(
     target,
     ra,
     dec,
-    time_text,  # type: ignore[no-untyped-def]
+    time_text,
     observed_frequency_hz,
     observed_drift_hz_s,
     drift_uncertainty_hz_s,
@@ -122,26 +124,13 @@ def predict(
         _resolve(database, "site", site, site_lat, site_lon, site_height)
         if database
         else sky.resolve_site(None, None, site_lat, site_lon, site_height)
-    )  # type: ignore[arg-type]
+    )
     where = (
         _resolve(database, "target", target, ra, dec)
         if database and target
         else sky.resolve_target(None, None, ra, dec)
-    )  # type: ignore[arg-type]
-    there = None
-    if to_site or to_site_lat is not None:
-        there = (
-            _resolve(database, "site", to_site, to_site_lat, to_site_lon, to_site_height, "to_site")
-            if database and to_site
-            else sky.resolve_site(
-                None,
-                None,
-                to_site_lat,
-                to_site_lon,
-                to_site_height,  # type: ignore[arg-type]
-                "to_site",
-            )
-        )
+    )
+    there = _second_site(database, to_site, to_site_lat, to_site_lon, to_site_height)
     result = sky.predict(
         here,
         where,
@@ -155,6 +144,22 @@ def predict(
     if as_json:
         click.echo(result.model_dump_json(indent=2))
         return
+    _print_prediction(result)
+
+
+def _second_site(
+    database: Any, code: str | None, lat: float | None, lon: float | None, height: float | None
+) -> Any:
+    """The site a prediction is made for, by code or position; None when none is given."""
+    if not code and lat is None:
+        return None
+    if database and code:
+        return _resolve(database, "site", code, lat, lon, height, "to_site")
+    return sky.resolve_site(None, None, lat, lon, height, "to_site")
+
+
+def _print_prediction(result: Any) -> None:
+    """One aligned line per quantity the prediction holds, then its notes."""
     rows = [
         ("radial velocity (toward target)", result.radial_velocity_m_s, "m/s"),
         ("Earth drift at observed frequency", result.earth_drift_hz_s, "Hz/s"),
@@ -194,7 +199,7 @@ def visibility(
     dec,
     from_text,
     days,
-    count,  # type: ignore[no-untyped-def]
+    count,
     as_json,
 ):
     """When a target is above a site's minimum elevation and clear of the Sun.
@@ -209,44 +214,50 @@ def visibility(
         _resolve(database, "target", target, ra, dec)
         if database and target
         else sky.resolve_target(None, None, ra, dec)
-    )  # type: ignore[arg-type]
+    )
     if site is None and site_lat is None:
-        with database.read() as session:  # type: ignore[union-attr]
+        with database.read() as session:
             found = sky.next_windows_everywhere(session, where, start, count)
-        if as_json:
-            click.echo(
-                json.dumps(
-                    {
-                        code: [
-                            {
-                                "start": w.start.isoformat(),
-                                "end": w.end.isoformat(),
-                                "max_elevation_deg": w.max_elevation_deg,
-                            }
-                            for w in ws
-                        ]
-                        for code, ws in found.items()
-                    },
-                    indent=2,
-                )
-            )
-            return
-        for code, windows in found.items():
-            for w in windows:
-                click.echo(
-                    f"{code:<8} {w.start:%Y-%m-%d %H:%M:%S} – {w.end:%Y-%m-%d %H:%M:%S} UTC"
-                    f"  peak {w.max_elevation_deg:5.1f} deg"
-                )
+        _print_windows_everywhere(found, as_json)
         return
     here = (
         _resolve(database, "site", site, site_lat, site_lon, site_height)
         if database and site
         else sky.resolve_site(None, None, site_lat, site_lon, site_height)
-    )  # type: ignore[arg-type]
+    )
     result = sky.visibility(here, where, start, days)
     if as_json:
         click.echo(result.model_dump_json(indent=2))
         return
+    _print_windows(result)
+
+
+def _print_windows_everywhere(found: dict[str, Any], as_json: bool) -> None:
+    """The next windows at every registered site, as JSON or one line per window."""
+    if as_json:
+        document = {
+            code: [
+                {
+                    "start": w.start.isoformat(),
+                    "end": w.end.isoformat(),
+                    "max_elevation_deg": w.max_elevation_deg,
+                }
+                for w in windows
+            ]
+            for code, windows in found.items()
+        }
+        click.echo(json.dumps(document, indent=2))
+        return
+    for code, windows in found.items():
+        for w in windows:
+            click.echo(
+                f"{code:<8} {w.start:%Y-%m-%d %H:%M:%S} – {w.end:%Y-%m-%d %H:%M:%S} UTC"
+                f"  peak {w.max_elevation_deg:5.1f} deg"
+            )
+
+
+def _print_windows(result: Any) -> None:
+    """A table of one site's windows (UTC, duration in hours, peak elevation), then notes."""
     click.echo(f"{'start (UTC)':<20} {'end (UTC)':<20} {'duration':>10} {'peak elevation':>15}")
     for w in result.windows:
         click.echo(

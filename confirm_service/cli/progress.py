@@ -40,11 +40,11 @@ def counted(label: str, total: int) -> Iterator[Callable[..., None]]:
 
     columns = ("[progress.description]{task.description}", BarColumn(), MofNCompleteColumn())
     with Progress(*columns, TimeElapsedColumn(), console=_console(), transient=True) as bar:
-        task = bar.add_task(label, total=total or None)
+        line = bar.add_task(label, total=total or None)
 
         def advance(steps: int, new_total: int | None = None) -> None:
             if new_total is not None:
-                bar.update(task, total=new_total)
-            bar.advance(task, steps)
+                bar.update(line, total=new_total)
+            bar.advance(line, steps)
 
         yield advance

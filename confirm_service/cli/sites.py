@@ -9,11 +9,11 @@ from confirm_service.cli.context import cli_actor, open_database, validated
 from confirm_service.timeutil import utc_and_mjd
 
 
-def _site_options(adding: bool):  # type: ignore[no-untyped-def]
+def _site_options(adding: bool):
     """The site's fields as options; every one optional when editing."""
     needed = adding
 
-    def decorate(command):  # type: ignore[no-untyped-def]
+    def decorate(command):
         options = [
             click.option("--name", required=needed, help="Full name of the site."),
             click.option(

@@ -11,8 +11,8 @@ from confirm_service.cli.context import cli_actor, open_database, validated
 from confirm_service.timeutil import utc_and_mjd
 
 
-def _target_options(adding: bool):  # type: ignore[no-untyped-def]
-    def decorate(command):  # type: ignore[no-untyped-def]
+def _target_options(adding: bool):
+    def decorate(command):
         options = [
             click.option("--ra", "ra_deg", type=float, required=adding, help="ICRS RA (deg)."),
             click.option("--dec", "dec_deg", type=float, required=adding, help="ICRS Dec (deg)."),

@@ -36,92 +36,93 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
+CHECK_COLUMNS = ["kind", "outcome", "measured", "expected", "tolerance", "unit", "reason"]
+HISTORY_COLUMNS = ["at", "from_stage", "to_stage", "from_state", "to_state", "reason", "actor"]
+PREDICTION_COLUMNS = [
+    "site",
+    "time",
+    "observed_frequency_hz",
+    "predicted_frequency_hz",
+    "frequency_sigma_hz",
+    "observed_drift_hz_s",
+    "predicted_drift_hz_s",
+    "drift_sigma_hz_s",
+    "role",
+]
+SCAN_COLUMNS = [
+    "observation",
+    "site",
+    "on_source",
+    "target",
+    "start",
+    "duration_s",
+    "frequency_min_hz",
+    "frequency_max_hz",
+    "channel_width_hz",
+]
+SIGNOFF_COLUMNS = ["at", "stage", "person", "role", "approve", "rationale"]
+COMMENT_COLUMNS = ["at", "author", "role", "text"]
+REQUEST_COLUMNS = ["created_at", "kind", "stage", "status", "payload"]
+REPORT_COLUMNS = ["observed_at", "site", "detected", "frequency_hz", "drift_hz_s", "notes"]
+ENTRY_COLUMNS = ["seq", "at", "actor", "role", "action", "subject"]
+STYLE = """
+body { font-family: system-ui, sans-serif; margin: 2em; max-width: 1100px; color: #222; }
+table { border-collapse: collapse; margin: 0.5em 0 1.5em; font-size: 0.85em; }
+th, td { border: 1px solid #bbb; padding: 3px 6px; vertical-align: top; text-align: left; }
+th { background: #eee; }
+.caution { border: 2px solid #8a5a00; background: #fff6e0; padding: 0.8em 1em; }
+code, pre { font-size: 0.8em; white-space: pre-wrap; word-break: break-all; }
+@media print { body { margin: 0.5cm; } h2 { page-break-after: avoid; } }
+"""
+
+
 def html_page(dossier: dict[str, Any]) -> str:
+    """The dossier as one self-contained, printable HTML page (tables and SVG plots)."""
     c = dossier["candidate"]
-    audit = dossier["audit"]
     plots = site_plots(dossier)
     plot_html = "".join(f"<h3>{html.escape(site)}</h3>{svg}" for site, svg in plots.items())
-    checks = _table(
-        c["checks"], ["kind", "outcome", "measured", "expected", "tolerance", "unit", "reason"]
-    )
-    history = _table(
-        c["history"], ["at", "from_stage", "to_stage", "from_state", "to_state", "reason", "actor"]
-    )
-    predictions = _table(
-        dossier["predictions"],
-        [
-            "site",
-            "time",
-            "observed_frequency_hz",
-            "predicted_frequency_hz",
-            "frequency_sigma_hz",
-            "observed_drift_hz_s",
-            "predicted_drift_hz_s",
-            "drift_sigma_hz_s",
-            "role",
-        ],
-    )
-    scans = _table(
-        dossier["scans"],
-        [
-            "observation",
-            "site",
-            "on_source",
-            "target",
-            "start",
-            "duration_s",
-            "frequency_min_hz",
-            "frequency_max_hz",
-            "channel_width_hz",
-        ],
-    )
-    signoffs = _table(c["signoffs"], ["at", "stage", "person", "role", "approve", "rationale"])
-    comments = _table(c["comments"], ["at", "author", "role", "text"])
-    requests = _table(
-        dossier["followups"]["requests"], ["created_at", "kind", "stage", "status", "payload"]
-    )
-    reports = _table(
-        dossier["followups"]["reports"],
-        ["observed_at", "site", "detected", "frequency_hz", "drift_hz_s", "notes"],
-    )
-    entries = _table(
-        [e["entry"] for e in audit["entries"]], ["seq", "at", "actor", "role", "action", "subject"]
-    )
-    checkpoint = audit["checkpoint"]
+    followups = dossier["followups"]
+    entries = [e["entry"] for e in dossier["audit"]["entries"]]
     return f"""<!doctype html>
 <html lang="en"><head><meta charset="utf-8">
 <title>Dossier of candidate {c["id"]}</title>
-<style>
-body {{ font-family: system-ui, sans-serif; margin: 2em; max-width: 1100px; color: #222; }}
-table {{ border-collapse: collapse; margin: 0.5em 0 1.5em; font-size: 0.85em; }}
-th, td {{ border: 1px solid #bbb; padding: 3px 6px; vertical-align: top; text-align: left; }}
-th {{ background: #eee; }}
-.caution {{ border: 2px solid #8a5a00; background: #fff6e0; padding: 0.8em 1em; }}
-code, pre {{ font-size: 0.8em; white-space: pre-wrap; word-break: break-all; }}
-@media print {{ body {{ margin: 0.5cm; }} h2 {{ page-break-after: avoid; }} }}
-</style></head><body>
+<style>{STYLE}</style></head><body>
 <h1>Candidate {c["id"]}: {html.escape(c["state"])} at stage {html.escape(c["stage"])}</h1>
 <p class="caution"><strong>Caution.</strong> {html.escape(dossier["caution"])}</p>
-<p>Target {html.escape(str(c["target"]))}; discovered at {html.escape(c["site"])};
+{_summary(dossier)}
+<h2>Checks (latest result of each kind)</h2>{_table(c["checks"], CHECK_COLUMNS)}
+<h2>Observed against predicted</h2>{_table(dossier["predictions"], PREDICTION_COLUMNS)}{plot_html}
+<h2>History</h2>{_table(c["history"], HISTORY_COLUMNS)}
+<h2>Sign-offs</h2>{_table(c["signoffs"], SIGNOFF_COLUMNS)}
+<h2>Comments</h2>{_table(c["comments"], COMMENT_COLUMNS)}
+<h2>Follow-up requests and reports</h2>{_table(followups["requests"], REQUEST_COLUMNS)}\
+{_table(followups["reports"], REPORT_COLUMNS)}
+<h2>Scans that bear on the candidate</h2>{_table(dossier["scans"], SCAN_COLUMNS)}
+<h2>Audit entries and proof</h2>
+{_proof_paragraph(dossier["audit"])}{_table(entries, ENTRY_COLUMNS)}
+</body></html>
+"""
+
+
+def _summary(dossier: dict[str, Any]) -> str:
+    """Target, discovery site, barycentric frequency, residual drift and protocol, in one line."""
+    c, protocol = dossier["candidate"], dossier["protocol"]
+    return f"""<p>Target {html.escape(str(c["target"]))}; discovered at {html.escape(c["site"])};
 barycentric frequency {c["barycentric_frequency_hz"]:,.3f} Hz; residual drift
 {c["residual_drift_hz_s"]:+.6f} Hz/s; reference time {html.escape(c["reference_time"])}.
-Protocol {html.escape(dossier["protocol"]["name"])} {html.escape(dossier["protocol"]["version"])},
-SHA-256 <code>{dossier["protocol"]["sha256"]}</code>.</p>
-<h2>Checks (latest result of each kind)</h2>{checks}
-<h2>Observed against predicted</h2>{predictions}{plot_html}
-<h2>History</h2>{history}
-<h2>Sign-offs</h2>{signoffs}
-<h2>Comments</h2>{comments}
-<h2>Follow-up requests and reports</h2>{requests}{reports}
-<h2>Scans that bear on the candidate</h2>{scans}
-<h2>Audit entries and proof</h2>
-<p>{len(audit["entries"])} entries, each with an RFC 6962 inclusion proof against checkpoint
+Protocol {html.escape(protocol["name"])} {html.escape(protocol["version"])},
+SHA-256 <code>{protocol["sha256"]}</code>.</p>"""
+
+
+def _proof_paragraph(audit: dict[str, Any]) -> str:
+    """How the audit entries are proven: the checkpoint, its key, and the command to check."""
+    checkpoint = audit["checkpoint"]
+    return f"""<p>{len(audit["entries"])} entries, each with an RFC 6962 inclusion proof against \
+checkpoint
 {checkpoint["id"]} (tree size {checkpoint["tree_size"]}, root
 <code>{checkpoint["root_hash_hex"]}</code>, signed {html.escape(checkpoint["timestamp"])} with
 Ed25519 key <code>{html.escape(audit["key_id"])}</code>). Check offline with
-<code>confirm-service dossier verify DIR --public-key KEY.pem</code>.</p>{entries}
-</body></html>
-"""
+<code>confirm-service dossier verify DIR --public-key KEY.pem</code>.</p>"""
 
 
 def write_dossier(dossier: dict[str, Any], folder: Path) -> list[Path]:

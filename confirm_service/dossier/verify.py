@@ -20,6 +20,7 @@ from typing import Any
 from confirm_service.audit.log import entry_bytes
 from confirm_service.audit.merkle import leaf_hash, verify_inclusion
 from confirm_service.audit.signing import Checkpoint, verify_checkpoint
+from confirm_service.states import CandidateState
 
 
 @dataclass
@@ -155,7 +156,10 @@ def _backed(dossier: dict[str, Any], proven: list[dict], report: DossierReport) 
             latest[-1]["expected"],
         ) != (check["outcome"], check["measured"], check["expected"]):
             report.fail(f"check {check['kind']}: the stated result has no proven entry")
-    if candidate["state"] != "open" and candidate.get("decision_checkpoint_size") is None:
+    if (
+        candidate["state"] != CandidateState.OPEN
+        and candidate.get("decision_checkpoint_size") is None
+    ):
         report.fail("a final state without the checkpoint it was decided at")
     report.checked.append("history, sign-offs and checks are backed by proven entries")
 

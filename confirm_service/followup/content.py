@@ -34,6 +34,7 @@ from confirm_service.protocol import (
     TargetFact,
     search_windows_hz,
 )
+from confirm_service.protocol.loader import ProtocolLike, model_of
 from confirm_service.protocol.reference import predict_from_reference
 
 DISCRIMINATING_TOLERANCES = 3.0
@@ -66,12 +67,12 @@ class Discovery:
 
 
 def drift_tolerance_hz_s(
-    protocol: Any, partner_resolution_hz_s: float, reference_resolution_hz_s: float
+    protocol: ProtocolLike, partner_resolution_hz_s: float, reference_resolution_hz_s: float
 ) -> float:
     """The doppler_consistency tolerance between a partner scan and the reference (Hz/s):
     ``max(tolerance_hz_s, resolution_multiplier * hypot(r_partner, r_reference))``, with the
     protocol's first doppler_consistency check's keys."""
-    model = getattr(protocol, "model", protocol)
+    model = model_of(protocol)
     for stage in model.stages:
         for check in stage.checks:
             if check.kind == "doppler_consistency":

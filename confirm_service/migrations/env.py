@@ -12,6 +12,8 @@ target_metadata = Base.metadata
 
 def run_migrations_online() -> None:
     url = context.config.get_main_option("sqlalchemy.url")
+    if url is None:
+        raise RuntimeError("the Alembic configuration names no sqlalchemy.url")
     engine = make_engine(url)
     with engine.connect() as connection:
         context.configure(

@@ -19,7 +19,7 @@ from confirm_service.models.followups import (
     PartnerSecret,
     ReceivedMessage,
 )
-from confirm_service.models.log import Detection, Observation, Site, Target
+from confirm_service.models.log import Detection, Observation, ScreeningRun, Site, Target
 from confirm_service.models.people import PERSON_ROLES, Person
 from confirm_service.models.scheduler import SchedulerJob, SchedulerRun
 
@@ -47,6 +47,7 @@ __all__ = [
     "ReceivedMessage",
     "SchedulerJob",
     "SchedulerRun",
+    "ScreeningRun",
     "SignOff",
     "Site",
     "StageTransition",

@@ -9,6 +9,7 @@ from sqlalchemy import JSON, Boolean, ForeignKey, Index, Integer, String, Text, 
 from sqlalchemy.orm import Mapped, mapped_column
 
 from confirm_service.models.base import Base
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
@@ -29,7 +30,7 @@ class Candidate(Base):
     protocol_name: Mapped[str] = mapped_column(String(128))
     protocol_sha256: Mapped[str] = mapped_column(String(64))
     bands_sha256: Mapped[str] = mapped_column(String(64), default="")
-    state: Mapped[str] = mapped_column(String(16), default="open")
+    state: Mapped[str] = mapped_column(String(16), default=CandidateState.OPEN)
     stage: Mapped[str] = mapped_column(String(128))
     stage_entered_at: Mapped[datetime] = mapped_column(default=utc_now)
     held: Mapped[bool] = mapped_column(Boolean, default=False)

@@ -51,7 +51,12 @@ class Target(Base):
 
 
 class Observation(Base):
-    """One scan at one site, on-source or off-source, part of an on/off ``cadence``."""
+    """One scan at one site, on-source or off-source, part of an on/off ``cadence``.
+
+    A scan is *open* (``completed_at`` is None) while its hits may still arrive; an open scan is
+    never evidence that a signal is absent. ``completed_by`` says how it was closed (see
+    ``services.scans.COMPLETION_ROUTES``).
+    """
 
     __tablename__ = "observations"
     __table_args__ = (
@@ -77,13 +82,21 @@ class Observation(Base):
     pipeline_run: Mapped[str | None] = mapped_column(String(128))
     detection_count: Mapped[int] = mapped_column(default=0)
     created_at: Mapped[datetime] = mapped_column(default=utc_now)
+    last_ingest_at: Mapped[datetime | None]
+    completed_at: Mapped[datetime | None]
+    completed_by: Mapped[str | None] = mapped_column(String(16))
+    screened_run_id: Mapped[int | None]
 
     site: Mapped[Site] = relationship(lazy="joined")
     target: Mapped[Target | None] = relationship(lazy="joined")
 
 
 class Detection(Base):
-    """A narrowband hit: topocentric ``frequency_hz`` at ``time_offset_s`` into the scan."""
+    """A narrowband hit: topocentric ``frequency_hz`` at ``time_offset_s`` into the scan.
+
+    ``screen_reason`` is None until screening judged the hit, then one of
+    ``protocol.screening.Reason``; ``screening_run_id`` names the run that judged it.
+    """
 
     __tablename__ = "detections"
     __table_args__ = (
@@ -99,3 +112,32 @@ class Detection(Base):
     bandwidth_hz: Mapped[float | None]
     beam: Mapped[str | None] = mapped_column(String(64))
     flagged_candidate: Mapped[bool] = mapped_column(Boolean, default=False)
+    screen_reason: Mapped[str | None] = mapped_column(String(24))
+    screening_run_id: Mapped[int | None]
+
+
+class ScreeningRun(Base):
+    """One bulk screening of a cadence's (or a lone scan's) pending hits, as audited.
+
+    Enough is kept to replay it: the complete scans it judged against, the other targets' scans
+    it read for occupancy (up to ``occupancy_max_detection_id``), the protocol by hash, the
+    counts per reason and the SHA-256 over the sorted ``id:reason`` lines of what it decided.
+    """
+
+    __tablename__ = "screening_runs"
+    __table_args__ = (Index("ix_screening_runs_site_cadence", "site_id", "cadence"),)
+
+    id: Mapped[int] = mapped_column(primary_key=True)
+    site_id: Mapped[int] = mapped_column(ForeignKey("sites.id"))
+    cadence: Mapped[str | None] = mapped_column(String(128))
+    trigger_observation_id: Mapped[int] = mapped_column(ForeignKey("observations.id"))
+    observation_ids: Mapped[list[Any]] = mapped_column(JSON, default=list)
+    occupancy_observation_ids: Mapped[list[Any]] = mapped_column(JSON, default=list)
+    occupancy_max_detection_id: Mapped[int | None]
+    protocol_sha256: Mapped[str] = mapped_column(String(64))
+    bands_sha256: Mapped[str] = mapped_column(String(64), default="")
+    counts: Mapped[dict[str, Any]] = mapped_column(JSON, default=dict)
+    pending: Mapped[int] = mapped_column(default=0)
+    decided_sha256: Mapped[str] = mapped_column(String(64))
+    candidate_ids: Mapped[list[Any]] = mapped_column(JSON, default=list)
+    created_at: Mapped[datetime] = mapped_column(default=utc_now)

@@ -64,7 +64,9 @@ _STENCIL = np.array([-2.0, -1.0, 1.0, 2.0])
 _STENCIL_WEIGHTS = np.array([1.0, -8.0, 8.0, -1.0]) / 12.0
 
 
-def require_positive_frequency(frequency_hz: ArrayLike, field: str = "frequency_hz") -> NDArray:
+def require_positive_frequency(
+    frequency_hz: ArrayLike, field: str = "frequency_hz"
+) -> NDArray[np.float64]:
     """Frequencies as float64, refusing values that are not finite or not > 0."""
     values = np.asarray(frequency_hz, dtype=np.float64)
     if not np.all(np.isfinite(values)) or np.any(values <= 0.0):
@@ -72,7 +74,9 @@ def require_positive_frequency(frequency_hz: ArrayLike, field: str = "frequency_
     return values
 
 
-def radial_velocity_m_s(location: EarthLocation, target: SkyCoord, times: Time) -> NDArray:
+def radial_velocity_m_s(
+    location: EarthLocation, target: SkyCoord, times: Time
+) -> NDArray[np.float64]:
     """Observer's barycentric velocity toward the target in m/s (astropy's correction)."""
     require_finite_target(target)
     check_time_coverage(times)
@@ -82,34 +86,34 @@ def radial_velocity_m_s(location: EarthLocation, target: SkyCoord, times: Time) 
     return np.asarray(correction.to_value(u.m / u.s), dtype=np.float64)
 
 
-def _shifted(times: Time, offsets_s: NDArray) -> Time:
+def _shifted(times: Time, offsets_s: NDArray[np.float64]) -> Time:
     """Times with a leading axis of offsets (s) added: shape (len(offsets),) + times.shape."""
     shape = (offsets_s.size,) + (1,) * times.ndim
     return times.reshape((1,) + times.shape) + TimeDelta(offsets_s.reshape(shape), format="sec")
 
 
-def _derivative(velocity_at_stencil: NDArray, step_s: float) -> NDArray:
+def _derivative(velocity_at_stencil: NDArray[np.float64], step_s: float) -> NDArray[np.float64]:
     """d/dt from values at t + (-2, -1, 1, 2) * step along the first axis."""
     return np.tensordot(_STENCIL_WEIGHTS, velocity_at_stencil, axes=1) / step_s
 
 
 def radial_velocity_and_acceleration(
     location: EarthLocation, target: SkyCoord, times: Time, step_s: float = DERIVATIVE_STEP_S
-) -> tuple[NDArray, NDArray]:
+) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """Radial velocity (m/s) and its time derivative (m/s^2), five-point stencil on astropy."""
     offsets = np.append(_STENCIL * step_s, 0.0)
     velocity = radial_velocity_m_s(location, target, _shifted(times, offsets))
     return velocity[4], _derivative(velocity[:4], step_s)
 
 
-def doppler_factor(radial_velocity_m_s: ArrayLike) -> NDArray:
+def doppler_factor(radial_velocity_m_s: ArrayLike) -> NDArray[np.float64]:
     """f_site / f_bary = 1 + v/c for the barycentric correction v (m/s)."""
     return 1.0 + np.asarray(radial_velocity_m_s, dtype=np.float64) / SPEED_OF_LIGHT_M_S
 
 
 def topocentric_frequency_hz(
     barycentric_frequency_hz: ArrayLike, radial_velocity_m_s: ArrayLike
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Frequency seen at the site (Hz) for a barycentric frequency (Hz): f_bary * (1 + v/c)."""
     f_bary = require_positive_frequency(barycentric_frequency_hz, "barycentric_frequency_hz")
     return f_bary * doppler_factor(radial_velocity_m_s)
@@ -117,7 +121,7 @@ def topocentric_frequency_hz(
 
 def barycentric_frequency_hz(
     observed_frequency_hz: ArrayLike, radial_velocity_m_s: ArrayLike
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Barycentric frequency (Hz) of a frequency observed at the site: f_site / (1 + v/c)."""
     f_site = require_positive_frequency(observed_frequency_hz, "observed_frequency_hz")
     return f_site / doppler_factor(radial_velocity_m_s)
@@ -125,7 +129,7 @@ def barycentric_frequency_hz(
 
 def drift_from_acceleration_hz_s(
     observed_frequency_hz: ArrayLike, radial_velocity_m_s: ArrayLike, acceleration_m_s2: ArrayLike
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Earth drift (Hz/s) from v (m/s) and dv/dt (m/s^2): f_site * (dv/dt) / (c + v)."""
     f_site = np.asarray(observed_frequency_hz, dtype=np.float64)
     velocity = np.asarray(radial_velocity_m_s, dtype=np.float64)
@@ -136,7 +140,7 @@ def drift_from_acceleration_hz_s(
 
 def earth_drift_hz_s(
     location: EarthLocation, target: SkyCoord, times: Time, frequency_hz: ArrayLike
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Drift (Hz/s) a constant-barycentric-frequency transmitter on the sky shows at the site.
 
     ``frequency_hz`` is the frequency observed at the site at ``times``. Direct astropy
@@ -149,7 +153,9 @@ def earth_drift_hz_s(
     return drift_from_acceleration_hz_s(f_site, 0.5 * (velocity[1] + velocity[2]), acceleration)
 
 
-def residual_drift_hz_s(observed_drift_hz_s: ArrayLike, earth_drift_hz_s: ArrayLike) -> NDArray:
+def residual_drift_hz_s(
+    observed_drift_hz_s: ArrayLike, earth_drift_hz_s: ArrayLike
+) -> NDArray[np.float64]:
     """Drift not explained by the observer's motion (Hz/s): observed - earth."""
     return np.asarray(observed_drift_hz_s, dtype=np.float64) - np.asarray(
         earth_drift_hz_s, dtype=np.float64
@@ -158,7 +164,7 @@ def residual_drift_hz_s(observed_drift_hz_s: ArrayLike, earth_drift_hz_s: ArrayL
 
 def barycentric_drift_hz_s(
     residual_drift_hz_s: ArrayLike, radial_velocity_m_s: ArrayLike
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Rate of the barycentric frequency (Hz per barycentric second) from a residual drift.
 
     With f_site(t) = f_bary(t_b) (1 + v/c) and dt_b/dt = 1 + v/c (cycles are conserved),
@@ -174,7 +180,7 @@ def topocentric_drift_hz_s(
     barycentric_drift_hz_s: ArrayLike,
     radial_velocity_m_s: ArrayLike,
     acceleration_m_s2: ArrayLike,
-) -> NDArray:
+) -> NDArray[np.float64]:
     """Drift at the site (Hz/s): f_bary-rate * (1 + v/c)^2 + f_bary * (dv/dt)/c."""
     factor = doppler_factor(radial_velocity_m_s)
     rate = np.asarray(barycentric_drift_hz_s, dtype=np.float64)

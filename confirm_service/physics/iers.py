@@ -79,7 +79,7 @@ class IersCoverage:
 
     def describe(self) -> str:
         def iso(mjd: float) -> str:
-            return Time(mjd, format="mjd", scale="utc").strftime("%Y-%m-%d")
+            return str(Time(mjd, format="mjd", scale="utc").strftime("%Y-%m-%d"))
 
         return (
             f"Earth-orientation tables {iso(self.first_mjd)} to {iso(self.last_mjd)}, "

@@ -168,15 +168,17 @@ def evaluate_pieces(
     ``spacing_s``. The one evaluation rule of every track: a time that is not finite (NaN,
     inf) or lies outside its track's span is refused with :class:`PhysicsInputError`.
     """
-    times = np.asarray(unix_s, dtype=np.float64)
-    position = (times - start_unix_s) / np.asarray(spacing_s, dtype=np.float64)
+    spacing = np.asarray(spacing_s, dtype=np.float64)
+    count = np.asarray(pieces, dtype=np.intp)
+    position = (np.asarray(unix_s, dtype=np.float64) - np.asarray(start_unix_s)) / spacing
     if not np.all(np.isfinite(position)):
         raise PhysicsInputError("unix_s", "times must be finite")
-    if position.size and (np.any(position < -1e-9) or np.any(position > pieces + 1e-9)):
+    if position.size and (np.any(position < -1e-9) or np.any(position > count + 1e-9)):
         raise PhysicsInputError("unix_s", "time outside the span of its radial-velocity track")
-    local = np.clip(np.floor(position).astype(np.intp), 0, np.asarray(pieces) - 1)
-    value, slope = _horner(coefficients, np.asarray(first_piece) + local, position - local)
-    return value, slope / spacing_s
+    local = np.clip(np.floor(position).astype(np.intp), 0, count - 1)
+    first = np.asarray(first_piece, dtype=np.intp)
+    value, slope = _horner(coefficients, first + local, position - local)
+    return value, slope / spacing
 
 
 def _horner(
@@ -292,12 +294,10 @@ def _target_rv_km_s(coord: SkyCoord) -> float:
 def _stacked_targets(parts: Sequence[_TargetParts]) -> SkyCoord:
     """One ICRS SkyCoord array from targets sharing a signature."""
     has_distance, has_motion, _ = parts[0].signature
-    kwargs: dict[str, object] = {
-        "ra": np.array([p.ra_deg for p in parts]) * u.deg,
-        "dec": np.array([p.dec_deg for p in parts]) * u.deg,
-        "frame": "icrs",
-    }
-    if not (np.all(np.isfinite(kwargs["ra"])) and np.all(np.isfinite(kwargs["dec"]))):
+    ra_deg = np.array([p.ra_deg for p in parts], dtype=np.float64)
+    dec_deg = np.array([p.dec_deg for p in parts], dtype=np.float64)
+    kwargs: dict[str, object] = {"ra": ra_deg * u.deg, "dec": dec_deg * u.deg, "frame": "icrs"}
+    if not (np.all(np.isfinite(ra_deg)) and np.all(np.isfinite(dec_deg))):
         raise PhysicsInputError("target", "target coordinates must be finite (got NaN/inf)")
     if has_distance:
         kwargs["distance"] = np.array([p.distance_pc for p in parts]) * u.pc

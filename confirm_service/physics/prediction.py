@@ -116,7 +116,9 @@ def _kinematics(
     return cache.kinematics([TrackRequest(location, target)], pairs, unix_s)
 
 
-def _light_travel_s(location: EarthLocation, target: SkyCoord, unix_s: NDArray) -> NDArray:
+def _light_travel_s(
+    location: EarthLocation, target: SkyCoord, unix_s: NDArray[np.float64]
+) -> NDArray[np.float64]:
     times = time_from_unix_s(unix_s)
     delay = times.light_travel_time(target, kind="barycentric", location=location)
     return np.asarray(delay.to_value(u.s), dtype=np.float64)
@@ -139,6 +141,34 @@ def barycentric_gap_s(
     return np.asarray(tdb_gap, dtype=np.float64) + (light_b - light_a)
 
 
+@dataclass(frozen=True)
+class _Source:
+    """The measured signal at its own site: v (m/s), 1 + v/c, the barycentric frequency (Hz),
+    Earth's drift there (Hz/s), the residual drift (Hz/s) and the barycentric rate (Hz/s)."""
+
+    velocity_m_s: float
+    factor: float
+    barycentric_frequency_hz: float
+    earth_drift_hz_s: float
+    residual_drift_hz_s: float
+    barycentric_rate_hz_s: float
+
+    @classmethod
+    def of(
+        cls, measurement: SignalMeasurement, target: SkyCoord, cache: TrackCache | None
+    ) -> _Source:
+        at = np.asarray([float(measurement.unix_s)])
+        velocity, acceleration = (
+            x[0] for x in _kinematics(measurement.location, target, at, cache)
+        )
+        factor = float(doppler_factor(velocity))
+        f_bary = float(measurement.frequency_hz) / factor
+        earth = f_bary * float(acceleration) / SPEED_OF_LIGHT_M_S
+        residual = float(measurement.drift_hz_s) - earth
+        rate = float(barycentric_drift_hz_s(residual, velocity))
+        return cls(float(velocity), factor, f_bary, earth, residual, rate)
+
+
 def predict_signal(
     measurement: SignalMeasurement,
     target: SkyCoord,
@@ -151,42 +181,31 @@ def predict_signal(
     require_finite_target(target)
     to_times = np.atleast_1d(np.asarray(to_unix_s, dtype=np.float64))
     time_from_unix_s(to_times, "to_unix_s")
-    at_a = np.asarray([float(measurement.unix_s)])
-    velocity_a, acceleration_a = (
-        x[0] for x in _kinematics(measurement.location, target, at_a, cache)
-    )
+    source = _Source.of(measurement, target, cache)
     velocity_b, acceleration_b = _kinematics(to_location, target, to_times, cache)
     gap = barycentric_gap_s(measurement.location, measurement.unix_s, to_location, to_times, target)
 
-    factor_a = float(doppler_factor(velocity_a))
-    f_bary_a = float(measurement.frequency_hz) / factor_a
-    earth_a = f_bary_a * float(acceleration_a) / SPEED_OF_LIGHT_M_S
-    residual = float(measurement.drift_hz_s) - earth_a
-    rate = float(barycentric_drift_hz_s(residual, velocity_a))
-
+    factor_a, rate = source.factor, source.barycentric_rate_hz_s
     factor_b = doppler_factor(velocity_b)
-    f_bary_b = f_bary_a + rate * gap
+    f_bary_b = source.barycentric_frequency_hz + rate * gap
     if np.any(f_bary_b <= 0.0):
         raise PhysicsInputError("to_unix_s", "the drift extrapolates to a non-positive frequency")
-    frequency_b = f_bary_b * factor_b
-    drift_b = topocentric_drift_hz_s(f_bary_b, rate, velocity_b, acceleration_b)
-
     sigma_f_bary = np.hypot(
         measurement.frequency_uncertainty_hz / factor_a,
         gap * measurement.drift_uncertainty_hz_s / factor_a**2,
     )
     return Prediction(
         unix_s=to_times,
-        frequency_hz=frequency_b,
-        drift_hz_s=drift_b,
+        frequency_hz=f_bary_b * factor_b,
+        drift_hz_s=topocentric_drift_hz_s(f_bary_b, rate, velocity_b, acceleration_b),
         frequency_uncertainty_hz=sigma_f_bary * factor_b,
         drift_uncertainty_hz_s=measurement.drift_uncertainty_hz_s * (factor_b / factor_a) ** 2,
-        barycentric_frequency_hz=f_bary_a,
-        residual_drift_hz_s=residual,
+        barycentric_frequency_hz=source.barycentric_frequency_hz,
+        residual_drift_hz_s=source.residual_drift_hz_s,
         radial_velocity_m_s=np.asarray(velocity_b, dtype=np.float64),
         earth_drift_hz_s=f_bary_b * acceleration_b / SPEED_OF_LIGHT_M_S,
-        source_radial_velocity_m_s=float(velocity_a),
-        source_earth_drift_hz_s=earth_a,
+        source_radial_velocity_m_s=source.velocity_m_s,
+        source_earth_drift_hz_s=source.earth_drift_hz_s,
         barycentric_drift_hz_s=rate,
         barycentric_gap_s=gap,
     )

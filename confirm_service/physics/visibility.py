@@ -22,7 +22,7 @@ import astropy.units as u
 import numpy as np
 from astropy.coordinates import AltAz, EarthLocation, SkyCoord, get_sun
 from astropy.time import Time
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 from scipy.interpolate import CubicSpline
 
 from .errors import PhysicsInputError
@@ -85,7 +85,9 @@ def altaz(
     )
 
 
-def _separation_deg(alt1, az1, alt2, az2) -> NDArray[np.float64]:
+def _separation_deg(
+    alt1: ArrayLike, az1: ArrayLike, alt2: ArrayLike, az2: ArrayLike
+) -> NDArray[np.float64]:
     """Great-circle angle (deg) between two alt/az directions (Vincenty form, stable)."""
     a1, z1, a2, z2 = (np.radians(np.asarray(x, dtype=np.float64)) for x in (alt1, az1, alt2, az2))
     dz = z2 - z1
@@ -93,10 +95,12 @@ def _separation_deg(alt1, az1, alt2, az2) -> NDArray[np.float64]:
         np.cos(a2) * np.sin(dz), np.cos(a1) * np.sin(a2) - np.sin(a1) * np.cos(a2) * np.cos(dz)
     )
     den = np.sin(a1) * np.sin(a2) + np.cos(a1) * np.cos(a2) * np.cos(dz)
-    return np.degrees(np.arctan2(num, den))
+    return np.asarray(np.degrees(np.arctan2(num, den)), dtype=np.float64)
 
 
-def sun_separation_deg(location: EarthLocation, target: SkyCoord, times: Time) -> NDArray:
+def sun_separation_deg(
+    location: EarthLocation, target: SkyCoord, times: Time
+) -> NDArray[np.float64]:
     """Angle (deg) between the target and the Sun as seen from the site."""
     check_time_coverage(times)
     frame = _frame(location, times)
@@ -128,14 +132,20 @@ class _Sky:
         separation = sun_separation_deg(location, target, time_from_unix_s(sun_knots))
         return cls(CubicSpline(alt_knots, elevation), CubicSpline(sun_knots, separation))
 
-    def observable(self, unix_s: NDArray, min_elevation_deg: float, sun_avoidance_deg: float):
-        return (self.elevation(unix_s) > min_elevation_deg) & (
-            self.sun_separation(unix_s) > sun_avoidance_deg
-        )
+    def observable(
+        self, unix_s: NDArray[np.float64], min_elevation_deg: float, sun_avoidance_deg: float
+    ) -> NDArray[np.bool_]:
+        high = np.asarray(self.elevation(unix_s)) > min_elevation_deg
+        clear_of_sun = np.asarray(self.sun_separation(unix_s)) > sun_avoidance_deg
+        return high & clear_of_sun
 
 
 def _refine_edges(
-    sky: _Sky, low: NDArray, high: NDArray, min_elevation_deg: float, sun_avoidance_deg: float
+    sky: _Sky,
+    low: NDArray[np.float64],
+    high: NDArray[np.float64],
+    min_elevation_deg: float,
+    sun_avoidance_deg: float,
 ) -> NDArray[np.float64]:
     """Bisect each [low, high] where the condition changes; returns the change times."""
     low, high = low.astype(np.float64).copy(), high.astype(np.float64).copy()
@@ -203,8 +213,8 @@ def _peak_elevations(
     location: EarthLocation,
     target: SkyCoord,
     sky: _Sky,
-    starts: NDArray,
-    ends: NDArray,
+    starts: NDArray[np.float64],
+    ends: NDArray[np.float64],
     step_s: float,
 ) -> NDArray[np.float64]:
     """Highest elevation (deg) in each window: astropy around the spline's maximum."""
@@ -218,7 +228,7 @@ def _peak_elevations(
         samples.append(np.concatenate([[s, e], np.clip(best + offsets, s, e)]))
     times = np.stack(samples)
     elevation, _ = altaz(location, target, time_from_unix_s(times))
-    return elevation.max(axis=1)
+    return np.asarray(elevation.max(axis=1), dtype=np.float64)
 
 
 def next_windows(

@@ -20,7 +20,7 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from itertools import accumulate
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeGuard
 
 from pydantic import Field, ValidationError
 
@@ -105,12 +105,15 @@ def band_problems(raw: dict[str, Any], file: str = "") -> list[ProtocolProblem]:
     return document_order(problems, raw, file)
 
 
+def _is_number(value: object) -> TypeGuard[int | float]:
+    return isinstance(value, int | float) and not isinstance(value, bool)
+
+
 def _edge_problems(index: int, entry: Any, file: str) -> list[ProtocolProblem]:
     if not isinstance(entry, dict):
         return []
     low, high = entry.get("frequency_min_hz"), entry.get("frequency_max_hz")
-    numbers = all(isinstance(v, int | float) and not isinstance(v, bool) for v in (low, high))
-    if numbers and high <= low:
+    if _is_number(low) and _is_number(high) and high <= low:
         return [
             ProtocolProblem(f"bands[{index}].frequency_max_hz", "must be > frequency_min_hz", file)
         ]

@@ -13,10 +13,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-STATE_OPEN = "open"
-STATE_REJECTED = "rejected"
-STATE_CONFIRMED = "confirmed"
-STATE_WITHDRAWN = "withdrawn"
+from confirm_service.states import CandidateState
+
+STATE_OPEN = CandidateState.OPEN
+STATE_REJECTED = CandidateState.REJECTED
+STATE_CONFIRMED = CandidateState.CONFIRMED
+STATE_WITHDRAWN = CandidateState.WITHDRAWN
 CANDIDATE_STATES = (STATE_OPEN, STATE_REJECTED, STATE_CONFIRMED, STATE_WITHDRAWN)
 TERMINAL_STATES = (STATE_REJECTED, STATE_CONFIRMED, STATE_WITHDRAWN)
 
@@ -62,7 +64,8 @@ class ObservationFact:
     """One scan: where the telescope pointed, when, over which band, with which resolution.
 
     ``detections`` holds the scan's detections inside the search window the protocol asked for
-    (``search_window_hz``), not necessarily every hit of the scan.
+    (``search_window_hz``), not necessarily every hit of the scan. ``complete`` is False while
+    the scan may still receive hits: an open scan is evidence of presence, never of absence.
     """
 
     id: int
@@ -79,6 +82,7 @@ class ObservationFact:
     on_source: bool
     beam: str | None = None
     cadence: str | None = None
+    complete: bool = True
     detections: tuple[DetectionFact, ...] = ()
 
     @property

@@ -53,7 +53,11 @@ class LoadedProtocol:
     band_set: BandSet = field(default_factory=lambda: BandSet(()), repr=False, compare=False)
 
 
-def model_of(protocol: LoadedProtocol | ProtocolModel) -> ProtocolModel:
+ProtocolLike = LoadedProtocol | ProtocolModel
+"""What evaluation accepts: a loaded protocol file, or a validated model on its own."""
+
+
+def model_of(protocol: ProtocolLike) -> ProtocolModel:
     """The validated model of a loaded protocol, or the model itself: the one lookup."""
     return protocol if isinstance(protocol, ProtocolModel) else protocol.model
 
@@ -100,7 +104,11 @@ def _loaded(data: bytes, path: Path | None, base_dir: Path | None = None) -> Loa
     raw, _ = parse_toml(text)
     model = ProtocolModel.model_validate(raw)
     base = path.parent if path is not None else base_dir
-    bands_path = None if model.interference_bands is None else base / model.interference_bands
+    bands_path = None
+    if model.interference_bands is not None:
+        if base is None:
+            raise ValueError("a protocol that names a band file needs a path or a base folder")
+        bands_path = base / model.interference_bands
     bands: tuple[InterferenceBand, ...] = ()
     bands_sha256 = ""
     if bands_path is not None:

@@ -9,8 +9,8 @@ judged by the checks (nonzero_drift, doppler_consistency), so that a signal on t
 the wrong drift is seen and rejected rather than silently left out.
 
 The search window of a scan is the band the track plus tolerance sweeps during the scan; a scan
-"covers" the prediction when its recorded band contains the whole window, and only a covering
-scan can count as "observed and absent".
+"covers" the prediction when it is complete and its recorded band contains the whole window, and
+only a covering scan can count as "observed and absent" (an open scan may still receive the hit).
 """
 
 from __future__ import annotations
@@ -368,7 +368,11 @@ def _candidate_view(
     views = []
     for index, observation in enumerate(observations):
         k = base + index
-        covers = observation.frequency_min_hz <= low[k] and high[k] <= observation.frequency_max_hz
+        covers = (
+            observation.complete
+            and observation.frequency_min_hz <= low[k]
+            and high[k] <= observation.frequency_max_hz
+        )
         views.append(
             ObservationView(
                 observation,

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from pydantic import ValidationError
+from pydantic_core import ErrorDetails
 
 SYNTAX_KEY_PATH_FALLBACK = "(file)"
 _DISCRIMINATOR_KEYS = ("kind", "action")
@@ -205,7 +206,7 @@ def _missing_discriminator(loc: tuple[Any, ...], raw: Any) -> str:
     return "action" if containers and containers[-1] == "on_entry" else "kind"
 
 
-def _message(item: dict[str, Any], missing_tag: bool) -> str:
+def _message(item: ErrorDetails, missing_tag: bool) -> str:
     error_type = item["type"]
     ctx = item.get("ctx") or {}
     if missing_tag or error_type == "missing":

@@ -36,9 +36,9 @@ from __future__ import annotations
 import math
 import threading
 from collections import OrderedDict
-from collections.abc import Hashable, Sequence
+from collections.abc import Callable, Hashable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Generic, TypeVar
 
 import numpy as np
 
@@ -50,6 +50,7 @@ from confirm_service.protocol.facts import (
     SiteFact,
     TargetFact,
 )
+from confirm_service.protocol.loader import ProtocolLike, model_of
 
 DEFAULT_FREQUENCY_UNCERTAINTY_CHANNELS = 1.0
 DEFAULT_DRIFT_UNCERTAINTY_RESOLUTIONS = 1.0
@@ -121,14 +122,17 @@ class PointPrediction:
     radial_velocity_m_s: np.ndarray
 
 
-class _BoundedCache:
+_Value = TypeVar("_Value")
+
+
+class _BoundedCache(Generic[_Value]):
     """A small least-recently-used mapping."""
 
     def __init__(self, max_entries: int) -> None:
         self.max_entries = max_entries
-        self._items: OrderedDict[Hashable, Any] = OrderedDict()
+        self._items: OrderedDict[Hashable, _Value] = OrderedDict()
 
-    def get_or_make(self, key: Hashable, make: Any) -> Any:
+    def get_or_make(self, key: Hashable, make: Callable[[], _Value]) -> _Value:
         if key in self._items:
             self._items.move_to_end(key)
             return self._items[key]
@@ -163,10 +167,10 @@ class PhysicsContext:
 
     def __init__(self, cache: Any | None = None, max_entries: int = 4096) -> None:
         self.cache = cache if cache is not None else physics.TrackCache()
-        self._locations = _BoundedCache(max_entries)
-        self._targets = _BoundedCache(max_entries)
-        self._requests = _BoundedCache(max_entries)
-        self._distances = _BoundedCache(max_entries)
+        self._locations: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._targets: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._requests: _BoundedCache[Any] = _BoundedCache(max_entries)
+        self._distances: _BoundedCache[float] = _BoundedCache(max_entries)
         self._known_distances: dict[tuple[SiteFact, SiteFact], float] = {}
 
     def location(self, site: SiteFact) -> Any:
@@ -227,10 +231,10 @@ def default_physics_context() -> PhysicsContext:
     return context
 
 
-def _uncertainty_scales(protocol: Any | None) -> tuple[float, float]:
+def _uncertainty_scales(protocol: ProtocolLike | None) -> tuple[float, float]:
     if protocol is None:
         return DEFAULT_FREQUENCY_UNCERTAINTY_CHANNELS, DEFAULT_DRIFT_UNCERTAINTY_RESOLUTIONS
-    matching = getattr(protocol, "model", protocol).matching
+    matching = model_of(protocol).matching
     return (
         matching.reference_frequency_uncertainty_channels,
         matching.reference_drift_uncertainty_resolutions,
@@ -244,7 +248,7 @@ def predict_references(
     point_pair: np.ndarray,
     point_owner: np.ndarray,
     unix_s: np.ndarray,
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
 ) -> tuple[list[ReferenceSignal], PointPrediction]:
     """Reference signals of many candidates and the predicted track at many points.
 
@@ -332,7 +336,7 @@ def predict_from_reference(
     sites: Sequence[SiteFact],
     site_index: np.ndarray,
     unix_s: np.ndarray,
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
 ) -> tuple[ReferenceSignal, PointPrediction]:
     """The reference signal and the predicted track at points (sites[site_index], unix_s)."""
     times = np.asarray(unix_s, dtype=np.float64)
@@ -384,7 +388,7 @@ def _track(
 
 def reference_of(
     source: CandidateFacts | tuple[DetectionFact, ObservationFact, TargetFact],
-    protocol: Any | None = None,
+    protocol: ProtocolLike | None = None,
     physics_context: PhysicsContext | None = None,
 ) -> ReferenceSignal:
     """The reference signal of a candidate (or of a detection, its scan and its target).

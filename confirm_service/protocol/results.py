@@ -9,10 +9,12 @@ from __future__ import annotations
 from dataclasses import asdict, dataclass, field
 from typing import Any, Literal
 
-PASS = "pass"
-FAIL = "fail"
-PENDING = "pending"
-NOT_APPLICABLE = "not_applicable"
+from confirm_service.states import CheckOutcome
+
+PASS = CheckOutcome.PASS
+FAIL = CheckOutcome.FAIL
+PENDING = CheckOutcome.PENDING
+NOT_APPLICABLE = CheckOutcome.NOT_APPLICABLE
 OUTCOMES = (PASS, FAIL, PENDING, NOT_APPLICABLE)
 Outcome = Literal["pass", "fail", "pending", "not_applicable"]
 

@@ -8,6 +8,8 @@ Layout (every numeric key carries its unit)::
     [matching]  frequency_tolerance_floor_hz, sigma_multiplier,
                 reference_frequency_uncertainty_channels,
                 reference_drift_uncertainty_resolutions, scan_margin_channels
+    [screening] off_source_max_drift_hz_s, off_source_margin_hz, occupancy_span_hours,
+                occupancy_drift_resolutions (all optional)
     [[stages]]  name, description, checks, deadline_hours, on_deadline, contacts, signoffs,
                 on_entry
 
@@ -94,6 +96,25 @@ class MatchingParams(StrictModel):
     scan_margin_channels: NonNegativeFloat
 
 
+class ScreeningParams(StrictModel):
+    """How a completed cadence's hits are screened in bulk before any becomes a candidate.
+
+    The thresholds, bands, zero-drift multiple and on/off counts come from ``[intake]`` and the
+    protocol's own ``nonzero_drift`` and ``on_off_cadence`` checks; only what those do not say
+    is here. Off-source scans are searched, at any drift, over
+    ``off_source_max_drift_hz_s * time span + off_source_margin_hz`` around the hit's track
+    (``off_source_max_drift_hz_s`` defaults to the intake's drift limit). Occupancy: a hit at
+    the same topocentric frequency (matching floor plus channel margins) and drift (within
+    ``occupancy_drift_resolutions`` drift resolutions) in scans of other targets at the same
+    site within ``occupancy_span_hours`` is local interference; 0 hours switches it off.
+    """
+
+    off_source_max_drift_hz_s: PositiveFloat | None = None
+    off_source_margin_hz: NonNegativeFloat = 100.0
+    occupancy_span_hours: NonNegativeFloat = 24.0
+    occupancy_drift_resolutions: PositiveFloat = 2.0
+
+
 class SignoffRule(StrictModel):
     """``count`` distinct persons with ``role`` must approve before the stage is left."""
 
@@ -162,6 +183,7 @@ class ProtocolModel(StrictModel):
     interference_bands: NonEmptyStr | None = None
     intake: IntakeRule
     matching: MatchingParams
+    screening: ScreeningParams = ScreeningParams()
     stages: list[StageModel] = Field(min_length=1)
 
     def stage_names(self) -> tuple[str, ...]:

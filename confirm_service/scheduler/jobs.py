@@ -14,7 +14,6 @@ import socket
 from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime
-from importlib import import_module
 
 from sqlalchemy import select
 
@@ -24,7 +23,7 @@ from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
 from confirm_service.models import Candidate, SchedulerRun
-from confirm_service.services import evaluation
+from confirm_service.services import evaluation, scans
 from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)
@@ -60,16 +59,10 @@ def sweep_deadlines(database: Database, settings: Settings, now: datetime) -> st
 
 
 def close_stale_scans(database: Database, settings: Settings, now: datetime) -> str:
-    """Close scans left open too long (the observation service decides which)."""
-    try:
-        scans = import_module("confirm_service.services.scans")
-        close = scans.close_stale_scans
-    except (ModuleNotFoundError, AttributeError):
-        return "skipped: this version has no open scans to close"
+    """Complete scans with no hits for the quiet period; their cadences are screened."""
     with database.write() as session:
-        result = close(session, SCHEDULER, now)
-    count = len(result) if hasattr(result, "__len__") else result
-    return f"{count} stale scan(s) closed"
+        closed = scans.close_stale_scans(session, SCHEDULER, now, settings.scan_quiet_period_s)
+    return f"{len(closed)} stale scan(s) closed after {settings.scan_quiet_period_s:g} s quiet"
 
 
 def scheduled_checkpoint(database: Database, settings: Settings, now: datetime) -> str:

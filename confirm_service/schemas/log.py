@@ -158,8 +158,11 @@ DETECTION_DEFAULTS = {"time_offset_s": 0.0, "bandwidth_hz": None, "beam": None, 
 
 
 class DetectionBatchIn(TypedDict):
+    """A batch of a scan's hits; ``complete`` true on the scan's last batch closes the scan."""
+
     __pydantic_config__ = ConfigDict(extra="forbid")  # type: ignore[misc]
     detections: list[DetectionIn]
+    complete: NotRequired[StrictBool]
 
 
 DETECTION_BATCH = TypeAdapter(DetectionBatchIn)
@@ -181,6 +184,7 @@ class DetectionBatchOut(OutModel):
     observation_id: int
     count: int
     ids: list[int]
+    complete: bool = False
     candidate_ids: list[int] = []
 
 
@@ -200,6 +204,15 @@ class ObservationIn(StrictModel):
     cadence: Annotated[str, Field(max_length=128)] | None = None
     pipeline_run: Annotated[str, Field(max_length=128)] | None = None
     detections: list[DetectionIn] = []
+    complete: StrictBool | None = Field(
+        default=None,
+        description="Whether every hit of the scan is in this request. Default: true when "
+        "detections are given inline, false otherwise (the scan stays open for batches).",
+    )
+
+    def is_complete(self) -> bool:
+        """The scan's hits are all in this request (explicitly, or by giving them inline)."""
+        return self.complete if self.complete is not None else bool(self.detections)
 
     @field_validator("frequency_max_hz")
     @classmethod
@@ -229,5 +242,19 @@ class ObservationOut(OutModel):
     pipeline_run: str | None
     detection_count: int
     created_at: UtcIso
+    complete: bool
+    completed_at: UtcIso | None
+    completed_by: str | None
     detection_ids: list[int] | None = None
     candidate_ids: list[int] | None = None
+
+
+class ScreeningCountsOut(OutModel):
+    """A scan's hits by screening outcome: reason -> count; ``pending`` not yet judged."""
+
+    observation_id: int
+    complete: bool
+    detection_count: int
+    pending: int
+    reasons: dict[str, int]
+    runs: list[int]

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import UTC, datetime
 from typing import Any
 
-from sqlalchemy import and_, func, or_, select
+from sqlalchemy import ColumnElement, and_, func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
@@ -39,7 +39,7 @@ from confirm_service.schemas.candidates import (
 from confirm_service.schemas.queries import CandidateQuery
 
 
-def latest_checks_subquery():  # type: ignore[no-untyped-def]
+def latest_checks_subquery():
     return (
         select(CheckResult.candidate_id, CheckResult.kind, func.max(CheckResult.id).label("id"))
         .group_by(CheckResult.candidate_id, CheckResult.kind)
@@ -94,7 +94,10 @@ def _matches_text(text: str) -> Any:
         .join(Site, Site.id == Observation.site_id)
         .where(func.lower(Site.code) == text.lower())
     )
-    conditions = [Candidate.target_id.in_(named), Candidate.id.in_(at_site)]
+    conditions: list[ColumnElement[bool]] = [
+        Candidate.target_id.in_(named),
+        Candidate.id.in_(at_site),
+    ]
     if number.isdigit():
         conditions.append(Candidate.id == int(number))
     return or_(*conditions)

@@ -89,6 +89,7 @@ def observation_fact(
         on_source=observation.on_source,
         beam=observation.beam,
         cadence=observation.cadence,
+        complete=observation.completed_at is not None,
         detections=tuple(detections),
     )
 
@@ -111,6 +112,7 @@ _SCAN_COLUMNS = (
     Observation.on_source,
     Observation.beam,
     Observation.cadence,
+    Observation.completed_at,
 )
 
 
@@ -138,6 +140,7 @@ def _scan_fact(row: Any) -> ObservationFact:
         on_source=row[14],
         beam=row[15],
         cadence=row[16],
+        complete=row[17] is not None,
     )
 
 

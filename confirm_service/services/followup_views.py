@@ -117,16 +117,6 @@ def resend_operations() -> dict[str, Any]:
     return found
 
 
-def screening_counts(session: Session) -> Any:
-    """Per-scan screening counts from the screening service, or None where it is not installed."""
-    try:
-        module = importlib.import_module("confirm_service.services.screening")
-    except ImportError:
-        return None
-    counts = getattr(module, "screening_counts", None)
-    return None if counts is None else counts(session)
-
-
 @dataclass(frozen=True)
 class AuditState:
     entries: int

@@ -17,15 +17,13 @@ from confirm_service.protocol import (
     LoadedProtocol,
     default_physics_context,
     initial_stage,
-    intake_decision,
     reference_of,
     search_windows_hz,
     stage_entry_actions,
 )
-from confirm_service.schemas.log import DetectionIn
 from confirm_service.services import facts as factbook
 from confirm_service.services import protocols
-from confirm_service.services.evaluation import candidates_bearing_on, record_actions, reevaluate
+from confirm_service.services.evaluation import record_actions, reevaluate
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import configured_protocol, protocol_of
 from confirm_service.timeutil import utc_now
@@ -48,7 +46,7 @@ def _could_be_same_signal(
     return abs(expected - barycentric_frequency_hz) <= 1_000.0 + 0.05 * abs(gap_s)
 
 
-def _same_signal_candidate(
+def same_signal_candidate(
     session: Session,
     protocol: LoadedProtocol,
     detection: Detection,
@@ -196,61 +194,73 @@ def promote_detection(
     return create_candidate(session, actor, detection, observation, "explicit", note)
 
 
-def _prefilter(protocol: LoadedProtocol, rows: Sequence[DetectionIn]) -> list[int]:
-    """Indexes of rows the intake rule could accept, or that the pipeline flagged."""
-    rule = protocol.model.intake
-    keep = []
-    for index, row in enumerate(rows):
-        passes = row["snr"] >= rule.min_snr and abs(row["drift_hz_s"]) <= rule.max_abs_drift_hz_s
-        if passes or row.get("candidate", False):
-            keep.append(index)
-    return keep
-
-
-def _intake(
+def join_or_create(
     session: Session,
     actor: Actor,
-    observation: Observation,
-    rows: Sequence[DetectionIn],
-    ids: list[int],
-) -> list[int]:
-    if observation.target is None or not rows:
-        return []
-    protocol = configured_protocol(session)
-    chosen = _prefilter(protocol, rows)
-    if not chosen:
-        return []
-    observation_f = factbook.observation_fact(observation)
-    target_f = factbook.target_fact(observation.target)
-    created: list[int] = []
-    for index in chosen:
-        detection = session.get(Detection, ids[index])
-        assert detection is not None
-        flagged = bool(rows[index].get("candidate", False))
-        if not flagged:
-            decision = intake_decision(
-                protocol, factbook.detection_fact(detection), observation_f, target_f
+    detection: Detection,
+    members: Sequence[tuple[int, int]],
+    origin: str,
+) -> int:
+    """The candidate for a signal: the one already on its track, else a new one.
+
+    ``members`` are (hit id, scan id) of every hit of the signal; all are linked.
+    """
+    observation = session.get(Observation, detection.observation_id)
+    assert observation is not None
+    existing = same_signal_candidate(session, configured_protocol(session), detection, observation)
+    if existing is None:
+        return create_candidate(session, actor, detection, observation, origin).id
+    known = set(
+        session.execute(
+            select(CandidateDetection.detection_id).where(
+                CandidateDetection.candidate_id == existing.id
             )
-            if not decision.promote:
-                continue
-        if _same_signal_candidate(session, protocol, detection, observation) is not None:
-            continue
-        origin = "pipeline_flag" if flagged else "intake_rule"
-        created.append(create_candidate(session, actor, detection, observation, origin).id)
-    return created
+        ).scalars()
+    )
+    for hit_id, scan_id in members:
+        if hit_id not in known:
+            session.add(
+                CandidateDetection(
+                    candidate_id=existing.id, detection_id=hit_id, observation_id=scan_id
+                )
+            )
+    return existing.id
 
 
-def on_new_data(
-    session: Session,
-    actor: Actor,
-    observation: Observation,
-    rows: Sequence[DetectionIn],
-    ids: list[int],
+def candidates_from_signals(
+    session: Session, actor: Actor, signals: Sequence[Sequence[tuple[int, int, float]]]
 ) -> list[int]:
-    """Intake of new detections, then re-evaluation of every candidate the scan bears on."""
-    created = _intake(session, actor, observation, rows, ids)
-    now = utc_now()
-    for candidate in candidates_bearing_on(session, observation):
-        if candidate.id not in created:
-            reevaluate(session, actor, candidate, now)
-    return created
+    """One candidate per surviving signal (hits as (hit id, scan id, SNR), earliest scan first).
+
+    The reference is the strongest hit of the signal's earliest scan. Survivors are few: this
+    runs per signal, never per screened hit.
+    """
+    made: list[int] = []
+    for signal in signals:
+        first_scan = signal[0][1]
+        reference_id = max((h for h in signal if h[1] == first_scan), key=lambda h: h[2])[0]
+        detection = session.get(Detection, reference_id)
+        assert detection is not None
+        members = [(hit, scan) for hit, scan, _ in signal]
+        candidate_id = join_or_create(session, actor, detection, members, "screening")
+        if candidate_id not in made:
+            made.append(candidate_id)
+    return made
+
+
+def promote_flagged(
+    session: Session, actor: Actor, observation: Observation, hit_ids: Sequence[int]
+) -> list[int]:
+    """Hits the pipeline flagged itself: candidates at once (or joined to one on their track)."""
+    if observation.target is None:
+        return []
+    made: list[int] = []
+    for hit_id in hit_ids:
+        detection = session.get(Detection, hit_id)
+        assert detection is not None
+        candidate_id = join_or_create(
+            session, actor, detection, [(hit_id, observation.id)], "pipeline_flag"
+        )
+        if candidate_id not in made:
+            made.append(candidate_id)
+    return made

@@ -15,7 +15,9 @@ from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import Invalid, NotFound, TooLarge
 from confirm_service.models import Detection, Observation, Site, Target
+from confirm_service.protocol.screening import Reason
 from confirm_service.schemas.log import DETECTION_DEFAULTS, DetectionIn, ObservationIn
+from confirm_service.services import intake, scans
 from confirm_service.services.sites import site_by_code, target_by_name
 from confirm_service.timeutil import utc_now
 
@@ -29,7 +31,9 @@ DETECTION_COLUMNS = (
     "bandwidth_hz",
     "beam",
     "flagged_candidate",
+    "screen_reason",
 )
+FLAGGED = Reason.FLAGGED.value
 
 
 def observation_end(observation: Observation) -> datetime:
@@ -115,6 +119,7 @@ def insert_detections(
             row.get("bandwidth_hz"),
             row.get("beam"),
             bool(row.get("candidate", False)),
+            FLAGGED if row.get("candidate", False) else None,
         )
         for new_id, row in zip(ids, rows, strict=True)
     ]
@@ -122,6 +127,7 @@ def insert_detections(
         tuples.sort(key=_frequency_of)  # index-friendly order; ids keep the request's order
         _insert_detection_rows(session, tuples)
         observation.detection_count = (observation.detection_count or 0) + len(tuples)
+        observation.last_ingest_at = utc_now()
     return ids
 
 
@@ -131,16 +137,9 @@ def rows_digest(rows: Sequence[DetectionIn]) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def _trigger_candidates(
-    session: Session,
-    actor: Actor,
-    observation: Observation,
-    rows: Sequence[DetectionIn],
-    ids: list[int],
-) -> list[int]:
-    from confirm_service.services import intake
-
-    return intake.on_new_data(session, actor, observation, rows, ids)
+def flagged_ids(rows: Sequence[DetectionIn], ids: list[int]) -> list[int]:
+    """Ids of the rows the pipeline flagged as candidates itself."""
+    return [new_id for new_id, row in zip(ids, rows, strict=True) if row.get("candidate", False)]
 
 
 def ingest_detections(
@@ -150,9 +149,13 @@ def ingest_detections(
     rows: Sequence[DetectionIn],
     max_batch: int,
     content_sha256: str | None = None,
+    complete: bool = False,
 ) -> tuple[list[int], list[int]]:
     """All-or-nothing bulk ingest. Returns (detection ids, ids of candidates it created).
 
+    Hits are only written here; they are screened when the scan is complete (``complete`` on
+    the last batch, the completion route or the scheduler's quiet-period close). Hits the
+    pipeline flagged become candidates at once. A complete scan refuses the batch (409).
     ``content_sha256`` is the digest of the batch as received (the request body); when absent,
     :func:`rows_digest` of the rows is recorded instead.
     """
@@ -164,6 +167,7 @@ def ingest_detections(
     observation = session.get(Observation, observation_id)
     if observation is None:
         raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
+    scans.refuse_if_complete(observation)
     errors = detection_errors(rows, observation)
     if errors:
         raise Invalid(f"{len(errors)} detection field(s) refused; nothing was written", errors)
@@ -178,9 +182,12 @@ def ingest_detections(
             "first_id": ids[0] if ids else None,
             "last_id": ids[-1] if ids else None,
             "content_sha256": content_sha256 or rows_digest(rows),
+            "complete": complete,
         },
     )
-    candidate_ids = _trigger_candidates(session, actor, observation, rows, ids)
+    candidate_ids = intake.promote_flagged(session, actor, observation, flagged_ids(rows, ids))
+    if complete:
+        candidate_ids += scans.complete_scan(session, actor, observation, scans.BATCH_FLAG)
     return ids, candidate_ids
 
 
@@ -232,8 +239,49 @@ def create_observation(
     payload["detection_count"] = len(data.detections)
     record(session, actor, "observation.created", f"observation:{observation.id}", payload)
     ids = insert_detections(session, observation, data.detections)
-    candidate_ids = _trigger_candidates(session, actor, observation, data.detections, ids)
+    candidate_ids = intake.promote_flagged(
+        session, actor, observation, flagged_ids(data.detections, ids)
+    )
+    if data.is_complete():
+        candidate_ids += scans.complete_scan(session, actor, observation, scans.INLINE)
     return observation, ids, candidate_ids
+
+
+def complete_observation(session: Session, actor: Actor, observation_id: int) -> list[int]:
+    """The pipeline says every hit of the scan is in: close it and screen its cadence."""
+    observation = session.get(Observation, observation_id, with_for_update={"of": Observation})
+    if observation is None:
+        raise NotFound(f"no observation {observation_id}", [("id", "no such observation")])
+    return scans.complete_scan(session, actor, observation, scans.ENDPOINT)
+
+
+def screening_counts(session: Session, observation_id: int) -> dict[str, Any]:
+    """A scan's hits per screening reason (``pending``: not judged yet) and the runs."""
+    from confirm_service.models import ScreeningRun
+
+    observation = get_observation(session, observation_id)
+    rows = session.execute(
+        select(Detection.screen_reason, func.count())
+        .where(Detection.observation_id == observation_id)
+        .group_by(Detection.screen_reason)
+    ).all()
+    reasons = {reason: int(count) for reason, count in rows if reason is not None}
+    pending = sum(int(count) for reason, count in rows if reason is None)
+    runs = session.execute(
+        select(ScreeningRun.id)
+        .join(Detection, Detection.screening_run_id == ScreeningRun.id)
+        .where(Detection.observation_id == observation_id)
+        .distinct()
+        .order_by(ScreeningRun.id)
+    ).scalars()
+    return {
+        "observation_id": observation_id,
+        "complete": observation.completed_at is not None,
+        "detection_count": observation.detection_count,
+        "pending": pending,
+        "reasons": dict(sorted(reasons.items())),
+        "runs": list(runs),
+    }
 
 
 def get_observation(session: Session, observation_id: int) -> Observation:
@@ -279,3 +327,39 @@ def list_detections(
         .limit(limit)
     )
     return list(session.execute(query).scalars())
+
+
+def recent_screening_counts(session: Session, limit: int = 100) -> list[dict[str, Any]]:
+    """The latest scans with their hits per screening reason (two queries, newest first)."""
+    scans = session.execute(
+        select(Observation).order_by(Observation.start.desc(), Observation.id.desc()).limit(limit)
+    ).scalars()
+    rows = {
+        o.id: {
+            "observation_id": o.id,
+            "site": o.site.code,
+            "target": o.target.name if o.target else None,
+            "start": o.start,
+            "on_source": o.on_source,
+            "complete": o.completed_at is not None,
+            "hits_in": o.detection_count,
+            "pending": 0,
+            "reasons": {},
+        }
+        for o in scans
+    }
+    if not rows:
+        return []
+    counted = session.execute(
+        select(Detection.observation_id, Detection.screen_reason, func.count())
+        .where(Detection.observation_id.in_(list(rows)))
+        .group_by(Detection.observation_id, Detection.screen_reason)
+    ).all()
+    for observation_id, reason, count in counted:
+        if reason is None:
+            rows[observation_id]["pending"] = int(count)
+        else:
+            rows[observation_id]["reasons"][reason] = int(count)
+    for row in rows.values():
+        row["reasons"] = dict(sorted(row["reasons"].items()))
+    return list(rows.values())

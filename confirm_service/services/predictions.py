@@ -11,6 +11,7 @@ import os
 from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import datetime, timedelta
+from typing import Any
 
 from confirm_service.cautions import NOT_A_DETECTION, SITE_SAFETY
 from confirm_service.physics import (
@@ -107,7 +108,7 @@ def compute_prediction(
     ``to_time`` is given, and ``to_time`` defaults to ``time``.
     """
     location = _site(site_lat_deg, site_lon_deg, site_elevation_m, "site_")
-    motion = dict(
+    motion: dict[str, Any] = dict(
         pm_ra_mas_yr=pm_ra_mas_yr,
         pm_dec_mas_yr=pm_dec_mas_yr,
         parallax_mas=parallax_mas,

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import select
 from sqlalchemy.exc import IntegrityError
@@ -12,7 +12,9 @@ from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import Conflict, NotFound
 from confirm_service.models import Site, Target
-from confirm_service.schemas.log import SiteIn, SiteUpdate, TargetIn, TargetUpdate
+
+if TYPE_CHECKING:  # the request schemas are only types here; listing stays light to import
+    from confirm_service.schemas.log import SiteIn, SiteUpdate, TargetIn, TargetUpdate
 
 
 def _audit_values(model: Any) -> dict[str, Any]:

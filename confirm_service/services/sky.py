@@ -49,17 +49,24 @@ def physics_refusals() -> Iterator[None]:
         raise Invalid(exc.message, [(exc.field, exc.message)]) from None
 
 
+def _needed(session: Session | None) -> Session:
+    """The session a look-up by code or name reads from."""
+    if session is None:
+        raise ValueError("a look-up by code or name needs a database session")
+    return session
+
+
 def resolve_site(
-    session: Session,
+    session: Session | None,
     code: str | None,
     lat: float | None,
     lon: float | None,
     height: float | None,
     prefix: str = "site",
 ) -> SitePosition:
-    """A registered site by code, or an explicit position (degrees, metres)."""
+    """A registered site by code (needs a session), or an explicit position (degrees, metres)."""
     if code:
-        site = site_by_code(session, code, prefix)
+        site = site_by_code(_needed(session), code, prefix)
         return SitePosition(
             site.code,
             site.latitude_deg,
@@ -76,10 +83,11 @@ def resolve_site(
 
 
 def resolve_target(
-    session: Session, name: str | None, ra: float | None, dec: float | None
+    session: Session | None, name: str | None, ra: float | None, dec: float | None
 ) -> TargetPosition:
+    """A registered target by name (needs a session), or an explicit ICRS position (deg)."""
     if name:
-        target = target_by_name(session, name)
+        target = target_by_name(_needed(session), name)
         motion = {
             "pm_ra_mas_yr": target.pm_ra_mas_yr,
             "pm_dec_mas_yr": target.pm_dec_mas_yr,

@@ -7,7 +7,7 @@ from typing import Any
 from flask import flash, redirect, render_template, request, url_for
 from werkzeug.exceptions import NotFound
 
-from confirm_service.services import access, attention, followup_views
+from confirm_service.services import access, attention, followup_views, observations
 from confirm_service.timeutil import utc_now
 from confirm_service.web import auth
 from confirm_service.web.blueprint import bp, database, settings
@@ -56,9 +56,9 @@ def resend_message(number: int) -> Any:
 @bp.get("/screening")
 @auth.requires_role(*auth.READ_ROLES)
 def screening() -> Any:
-    """Per scan: hits received and hits dropped per reason, when screening is installed."""
+    """The latest scans: hits received, per screening reason, and still pending."""
     with database().read() as session:
-        counts = followup_views.screening_counts(session)
+        counts = observations.recent_screening_counts(session)
     return render_template("screening.html", counts=counts)
 
 

@@ -103,6 +103,11 @@ CSV_COLUMNS = (
 )
 
 
+def _text_cell(value: str) -> str:
+    """Text a spreadsheet would not run as a formula (OWASP "CSV Injection")."""
+    return "'" + value if value[:1] in ("=", "+", "-", "@", "\t", "\r") else value
+
+
 @bp.get("/candidates.csv")
 @auth.requires_role(*auth.READ_ROLES)
 def candidates_csv() -> Response:
@@ -119,15 +124,15 @@ def candidates_csv() -> Response:
             [
                 c.id,
                 c.state,
-                c.stage,
+                _text_cell(c.stage),
                 "yes" if c.held else "no",
-                c.target or "",
-                c.site,
+                _text_cell(c.target or ""),
+                _text_cell(c.site),
                 repr(c.barycentric_frequency_hz),
                 repr(c.residual_drift_hz_s),
                 c.reference_time.isoformat(),
                 f"{mjd_utc(c.reference_time):.6f}",
-                c.reason_class or "",
+                _text_cell(c.reason_class or ""),
                 c.updated_at.isoformat(),
             ]
         )

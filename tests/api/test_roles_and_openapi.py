@@ -23,6 +23,8 @@ EXPECTED_ROLES = {
     ("GET", "/api/v1/observations/<int:observation_id>"): ALL,
     ("GET", "/api/v1/observations/<int:observation_id>/detections"): ALL,
     ("POST", "/api/v1/observations/<int:observation_id>/detections"): {"pipeline", "admin"},
+    ("POST", "/api/v1/observations/<int:observation_id>/complete"): {"pipeline", "admin"},
+    ("GET", "/api/v1/observations/<int:observation_id>/screening"): ALL,
     ("GET", "/api/v1/candidates"): ALL,
     ("POST", "/api/v1/candidates"): {"coordinator", "pipeline", "admin"},
     ("GET", "/api/v1/candidates/<int:candidate_id>"): ALL,

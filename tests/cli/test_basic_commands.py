@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+from alembic.script import ScriptDirectory
 from click.testing import CliRunner
 
 from confirm_service.cli import main
 from confirm_service.cli.context import settings
+from confirm_service.db import alembic_config
 
 
 def run(args, database_url, **env):
@@ -69,9 +71,5 @@ def test_db_upgrade_creates_a_database(tmp_path):
     url = f"sqlite:///{tmp_path / 'new.db'}"
     result = run(["db", "upgrade"], url)
     assert result.exit_code == 0, result.output
-    from alembic.script import ScriptDirectory
-
-    from confirm_service.db import alembic_config
-
     head = ScriptDirectory.from_config(alembic_config(url)).get_current_head()
     assert run(["db", "current"], url).stdout.strip() == head

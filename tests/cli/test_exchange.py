@@ -472,7 +472,9 @@ def test_refused_groups_are_named_by_line_and_field_and_write_nothing(cli, datab
             .all()
         )
     assert created == [cli_actor().name] * 2
-    assert count(database, AuditEntry) == entries_before + 2
+    # two scans created; the one with hits is complete, so it was screened (its completion,
+    # the protocol it was screened under and the screening run are audited too)
+    assert count(database, AuditEntry) == entries_before + 5
 
 
 def test_unreadable_jsonl_line_refuses_the_observations_around_it(database, tmp_path):

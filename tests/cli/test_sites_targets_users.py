@@ -7,6 +7,7 @@ the database unchanged. Start-up speed is measured by benchmarks/bench_cli_start
 from __future__ import annotations
 
 import os
+import re
 import subprocess
 import sys
 from datetime import UTC, datetime
@@ -183,3 +184,23 @@ def test_listing_loads_no_physics_plotting_or_web_code(database_url):
         [sys.executable, "-c", probe], capture_output=True, text=True, check=True, env=env
     )
     assert out.stdout.strip().splitlines()[-1] == "exit 0 loaded none", out.stdout + out.stderr
+
+
+def test_the_demo_says_where_the_pages_are_and_how_to_sign_in(tmp_path):
+    from confirm_service.db import Database, upgrade_database
+    from confirm_service.demo import DemoResult, dashboard_sign_in
+    from confirm_service.services.people import sign_in
+
+    url = f"sqlite:///{tmp_path / 'confirm-service.db'}"
+    upgrade_database(url)
+    lines = dashboard_sign_in(DemoResult(folder=tmp_path, database_url=url), port=8123)
+    text = "\n".join(lines)
+    assert "http://127.0.0.1:8123/dashboard" in text
+    assert f"CONFIRM_DATABASE_URL={url}" in text and "confirm-service serve --port 8123" in text
+    found = re.findall(r"^\s+(demo-\S+)\s+password (\S+)", text, flags=re.M)
+    assert [name for name, _ in found] == ["demo-coordinator", "demo-viewer"]
+    database = Database(url)
+    with database.write() as session:  # the printed passwords really sign in
+        for name, password in found:
+            assert sign_in(session, name, password).actor is not None
+    database.dispose()

@@ -169,7 +169,7 @@ def test_upgrade_renames_tokens_that_shared_a_name(tmp_path):
     from confirm_service.db import upgrade_database
 
     url = f"sqlite:///{tmp_path / 'old.db'}"
-    upgrade_database(url, "0004")
+    upgrade_database(url, "0005")
     engine = create_engine(url)
     with engine.begin() as connection:
         for digest in ("a" * 64, "b" * 64, "c" * 64):

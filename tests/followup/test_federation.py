@@ -158,7 +158,7 @@ def test_two_instances_request_and_report_to_each_other(tmp_path):
         assert candidate["stage"] == "independent_site"
 
         # A's scheduler drafts the request to TFO and delivers it, signed, to B's inbox.
-        a.run_due(datetime.now(UTC))
+        a.run_due(datetime(2026, 11, 23, tzinfo=UTC))  # fixed: windows do not depend on the date
         _, requests = a.call("GET", f"/api/v1/followups?candidate={candidate['id']}", "coordinator")
         (to_b,) = [r for r in requests["items"] if r["site"] == "TFO"]
         assert to_b["status"] == "acknowledged" and to_b["remote_id"]

@@ -23,6 +23,8 @@ from confirm_service.services.tokens import create_token
 from tests.followup.loopback import Recorder
 
 NORTH, SOUTH, EAST = SITES  # PRA, TFO, ORV (invented)
+NOW = datetime(2026, 11, 23, tzinfo=UTC)
+"""A fixed time after the scenario's scans: request windows do not depend on the test's date."""
 
 
 def at_independent_site(client, auth):
@@ -75,7 +77,7 @@ def skyfield_check_window(site, target, start, end, min_elevation_deg, sun_avoid
 def test_intent_to_requests_with_windows_tracks_and_reasons(app, client, auth, db):
     candidate, _ = at_independent_site(client, auth)
     settings = app.extensions["confirm.settings"]
-    now = datetime.now(UTC)
+    now = NOW
     run_due(db, settings, now)
     rows = requests_of(db, candidate["id"])
     intents = [r for r in rows if r[1] == "request_followup" and r[3] is None]
@@ -129,7 +131,7 @@ def test_delivery_retries_dead_letter_resend_and_pull(app, client, auth, db):
     )
     with db.write() as session:
         secret = set_partner_secret(session, SYSTEM, "TFO")
-    now = datetime.now(UTC)
+    now = datetime.now(UTC)  # the re-send route acts at the real time
     with Recorder(500) as failing, Recorder(200, {"request_id": 41, "acknowledged": True}) as ok:
         patch = {"webhook_url": failing.url}
         assert (
@@ -177,7 +179,7 @@ def test_delivery_retries_dead_letter_resend_and_pull(app, client, auth, db):
 
 def test_reports_on_a_request_move_both_checks(app, client, auth, db):
     candidate, scans = at_independent_site(client, auth)
-    run_due(db, app.extensions["confirm.settings"], datetime.now(UTC))
+    run_due(db, app.extensions["confirm.settings"], NOW)
     requests = {r[5]["site"]: r[0] for r in requests_of(db, candidate["id"]) if r[3]}
     tfo, orv = site_token(db, "TFO"), site_token(db, "ORV")
     cloudy = {"observed": False, "not_observed_reason": "weather", "notes": "rain"}
@@ -216,3 +218,37 @@ def test_reports_on_a_request_move_both_checks(app, client, auth, db):
     shown = client.get(f"/api/v1/followups/{requests['ORV']}", headers=auth("viewer")).json
     assert shown["status"] == "reported" and shown["reported_at"]
     assert np.isfinite(after["reports"][-1]["sefd_jy"])
+
+
+def test_coordinator_requests_and_the_partners_answers(app, client, auth, db):
+    candidate, _ = at_independent_site(client, auth)
+    url = f"/api/v1/candidates/{candidate['id']}/followups"
+    coordinator = auth("coordinator")
+    for body in ({}, {"site": "TFO", "min_distance_km": 1000.0}, {"site": "TFO", "extra": 1}):
+        refused = client.post(url, json=body, headers=coordinator)
+        assert refused.status_code == 422 and refused.json["errors"]
+    assert client.post(url, json={"site": "NOPE"}, headers=coordinator).status_code == 404
+    named = client.post(url, json={"site": "ORV", "horizon_hours": 96}, headers=coordinator)
+    assert named.status_code == 201, named.json
+    (to_orv,) = named.json
+    assert to_orv["status"] == "drafted" and to_orv["origin"] == "coordinator"
+    far = client.post(url, json={"min_distance_km": 8000.0, "max_sites": 1}, headers=coordinator)
+    assert far.status_code == 201 and len(far.json) == 1  # PRA-TFO and PRA-ORV both > 8000 km
+    nowhere = client.post(url, json={"min_distance_km": 19000.0}, headers=coordinator)
+    assert nowhere.status_code == 422  # no registered site is that far from PRA
+    tfo, orv = site_token(db, "TFO"), site_token(db, "ORV")
+    base = f"/api/v1/followups/{to_orv['id']}"
+    assert client.post(base + "/acknowledge", headers=tfo).status_code == 403
+    assert client.post(base + "/acknowledge", headers=orv).status_code == 409  # not sent yet
+    now = datetime.now(UTC)  # the coordinator's request starts at the real time
+    run_due(db, app.extensions["confirm.settings"], now + timedelta(days=2))
+    assert client.get(base, headers=orv).json["status"] == "sent"  # ORV pulls; no webhook
+    declined = client.post(base + "/decline", json={"reason": "receiver down"}, headers=orv)
+    assert declined.status_code == 200 and declined.json["status"] == "declined"
+    assert declined.json["state_reason"] == "receiver down" and declined.json["declined_at"]
+    # Past their deadlines, the other open requests expire (TFO's has no shared secret here,
+    # so its delivery failed at once).
+    run_due(db, app.extensions["confirm.settings"], now + timedelta(days=20))
+    states = {r[0]: r[2] for r in requests_of(db, candidate["id"]) if r[3] is not None}
+    assert states.pop(to_orv["id"]) == "declined"
+    assert set(states.values()) <= {"expired", "failed"} and "expired" in states.values()

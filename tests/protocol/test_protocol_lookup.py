@@ -29,7 +29,11 @@ def test_machine_and_matching_use_the_same_lookup(default_protocol: LoadedProtoc
 
 
 def _writes_the_lookup(node: ast.AST) -> bool:
-    """``x if isinstance(x, ProtocolModel) else x.model`` (or the reverse)."""
+    """``x if isinstance(x, ProtocolModel) else x.model`` (or the reverse), or
+    ``getattr(x, "model", x)``."""
+    if isinstance(node, ast.Call) and isinstance(node.func, ast.Name) and node.func.id == "getattr":
+        name = node.args[1] if len(node.args) == 3 else None
+        return isinstance(name, ast.Constant) and name.value == "model"
     if not isinstance(node, ast.IfExp) or not isinstance(node.test, ast.Call):
         return False
     call = node.test

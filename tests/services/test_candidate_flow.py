@@ -51,7 +51,9 @@ def count(db, model, *where) -> int:
 
 def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
     candidates = post_scenario(client, auth)
-    assert len(candidates) == 4
+    # Screening leaves two candidates: the sky-fixed signal and the hit the pipeline flagged
+    # itself in a navigation band; the other interference never becomes a candidate.
+    assert len(candidates) == 2
     sky = by_frequency(candidates, 1.423e9)
     assert (sky["state"], sky["stage"]) == ("open", "review")
     outcomes = {c["kind"]: c["outcome"] for c in sky["checks"]}
@@ -74,7 +76,13 @@ def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
     stages = [h["to_stage"] for h in sky["history"]]
     assert stages == ["screening", "reobservation", "independent_site", "review"]
     rejected = {c["reason_class"] for c in candidates if c["state"] == "rejected"}
-    assert rejected == {"zero_drift", "interference_band"}
+    assert rejected == {"interference_band"}
+    # ... and the rest of the cadence's hits kept their screening reason, countable per scan
+    first_on = client.get("/api/v1/observations/1/screening", headers=auth("viewer")).get_json()
+    assert first_on["pending"] == 0
+    assert first_on["reasons"] == {"flagged": 1, "low_snr": 40, "survived": 1, "zero_drift": 2}
+    first_off = client.get("/api/v1/observations/2/screening", headers=auth("viewer")).get_json()
+    assert first_off["reasons"] == {"off_source_scan": 41}
     # the protocol file's content hash is recorded (outside reference: hashlib on the file)
     assert (
         sky["protocol"]["sha256"] == hashlib.sha256(DEFAULT_PROTOCOL_FILE.read_bytes()).hexdigest()

@@ -75,7 +75,7 @@ def test_replay_is_read_only_deterministic_and_selective(client, auth, db, tmp_p
     settings.cache_clear()
     assert result.exit_code == 0, result.output
     assert f"{sky['id']:>9}" in result.stdout
-    assert "1 of 4 candidate(s) would end differently" in result.stderr
+    assert "1 of 2 candidate(s) would end differently" in result.stderr
 
 
 def test_admin_adoption_re_evaluates_open_candidates(client, auth, db, tmp_path):
@@ -118,6 +118,6 @@ def test_candidates_cli_tables(client, auth, database_url):
     shown = CliRunner().invoke(main, ["candidates", "show", str(sky["id"])], env=env)
     settings.cache_clear()
     assert listed.exit_code == 0 and shown.exit_code == 0, listed.output + shown.output
-    assert listed.stdout.count("rejected") == 3
+    assert listed.stdout.count("rejected") == 1
     assert "doppler_consistency" in shown.stdout and "Hz/s" in shown.stdout
     assert "not a detection" in shown.stdout

@@ -57,7 +57,9 @@ def test_two_coordinators_confirm_a_candidate_in_a_real_browser(
         browser = playwright.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)
         try:
             first = browser.new_context(viewport={"width": 1280, "height": 900})
-            first.set_default_timeout(10_000)
+            first.set_default_timeout(
+                60_000
+            )  # page renders compute predictions; CI machines are shared
             first.route("**/*", only_this_server)
             page = first.new_page()
             _sign_in(page, served, tokens["coordinator"])
@@ -88,7 +90,9 @@ def test_two_coordinators_confirm_a_candidate_in_a_real_browser(
             first.close()
 
             second = browser.new_context()  # another person: separate cookies
-            second.set_default_timeout(10_000)
+            second.set_default_timeout(
+                60_000
+            )  # page renders compute predictions; CI machines are shared
             second.route("**/*", only_this_server)
             page = second.new_page()
             _sign_in(page, served, second_secret)

@@ -84,6 +84,9 @@ def test_a_coordinators_day_in_a_real_browser(sync_playwright, served, client, a
                 assert waiting.count() == 1
                 assert _above_the_fold(page, page.locator("#attention-title"), viewport), name
                 assert _above_the_fold(page, waiting, viewport), name
+                page.keyboard.press("Tab")  # the keyboard reaches the skip link first
+                focused = page.evaluate("document.activeElement.textContent")
+                assert focused == "Skip to the content"
                 page.screenshot(path=str(artefacts / f"attention-{name}.png"))
                 context.close()
 

@@ -163,6 +163,10 @@ def test_search_by_id_site_and_frequency(app, client, auth, tokens):
     near = viewer.get(f"/dashboard?frequency_hz={f + 40}&tolerance_hz=50")
     assert listed_ids(near) == [review["id"]]
     assert listed_ids(viewer.get(f"/dashboard?frequency_hz={f + 60}&tolerance_hz=50")) == []
+    for query in ("q=tfo", f"frequency_hz={f + 40}&tolerance_hz=50", "q=kestrel&state=rejected"):
+        api = client.get(f"/api/v1/candidates?{query}", headers=auth("viewer")).get_json()
+        page = viewer.get(f"/dashboard?{query}")
+        assert sorted(c["id"] for c in api["items"]) == sorted(listed_ids(page)), query
     refused = viewer.get("/dashboard?frequency_hz=minus-three")
     assert refused.status_code == 400 and refused.mimetype == "text/html"
     assert "frequency_hz" in page_text(refused)
@@ -175,14 +179,15 @@ def test_filters_survive_paging_and_export(app, client, auth, tokens, monkeypatc
     candidates = post_scenario(client, auth)
     monkeypatch.setattr(pages_overview, "LIST_LIMIT", 1)
     viewer = signed_in(app, tokens["viewer"])
-    first = viewer.get("/dashboard?state=rejected&q=kestrel")
+    first = viewer.get("/dashboard?target=Kestrel-7&q=kestrel")
     following = re.search(r'href="([^"]+)" rel="next"', first.text)
     assert following is not None
     link = following.group(1).replace("&amp;", "&")
-    assert "state=rejected" in link and "q=kestrel" in link and "after=" in link
-    seen = listed_ids(first) + listed_ids(viewer.get(link))
+    assert "target=Kestrel-7" in link and "q=kestrel" in link and "after=" in link
+    second = viewer.get(link)
+    assert listed_ids(first) + listed_ids(second) == sorted(c["id"] for c in candidates)
+    assert re.search(r'rel="next"', second.text) is None
     rejected = sorted(c["id"] for c in candidates if c["state"] == "rejected")
-    assert seen == rejected[:2]
 
     exported = viewer.get("/dashboard/candidates.csv?state=rejected")
     assert exported.mimetype == "text/csv"
@@ -230,7 +235,11 @@ def test_sites_followups_screening_and_audit_pages(app, client, auth, tokens):
     assert viewer.get("/dashboard/sites/NOPE").status_code == 404
     followups = page_text(viewer.get("/dashboard/follow-ups"))
     assert "request_followup" in followups or "No follow-up request" in followups
-    assert viewer.get("/dashboard/screening").status_code == 200
+    screening = viewer.get("/dashboard/screening")
+    assert screening.status_code == 200
+    text = page_text(screening)  # the first off-source scan: its 41 hits, all kept as evidence
+    assert "off_source_scan: 41" in text and "present_off_source" not in text
+    assert "zero_drift: 2" in text and "survived: 1" in text
     audit = viewer.get("/dashboard/audit?verify=1")
     assert audit.status_code == 200 and "✓ intact" in page_text(audit)
 
@@ -279,11 +288,15 @@ def test_undelivered_followups_need_a_person(app, client, auth, db, tokens):
     assert "✗ dead letter" in text and "https://partner.example/hook" in text
     available = resend_operations()
     assert (f"Re-send request {failed_id}" in text) == ("request" in available)
-    if "request" not in available:  # the delivery service is not installed: a page, not JSON
-        refused = coordinator.post(
-            f"/dashboard/follow-ups/requests/{failed_id}/resend",
-            data={"csrf_token": csrf_of(page)},
-        )
-        assert refused.status_code == 404 and refused.mimetype == "text/html"
+    answer = coordinator.post(
+        f"/dashboard/follow-ups/requests/{failed_id}/resend", data={"csrf_token": csrf_of(page)}
+    )
+    if "request" in available:  # drafted again, due now; the dead letter stays on record
+        assert answer.status_code == 302
+        with db.read() as session:
+            assert session.get(FollowUpRequest, failed_id).status == "drafted"
+        assert "will be sent again" in page_text(coordinator.get("/dashboard/follow-ups"))
+    else:  # the delivery service is not installed: a page, not JSON
+        assert answer.status_code == 404 and answer.mimetype == "text/html"
     viewer = signed_in(app, tokens["viewer"])
     assert "Re-send" not in page_text(viewer.get("/dashboard/follow-ups"))

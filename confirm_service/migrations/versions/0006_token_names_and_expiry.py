@@ -1,7 +1,7 @@
 """token names unique, token expiry
 
-Revision ID: 0005
-Revises: 0004
+Revision ID: 0006
+Revises: 0005
 Create Date: 2026-12-02 10:40:00.000000
 """
 
@@ -12,8 +12,8 @@ from alembic import op
 
 import confirm_service.models.base
 
-revision = "0005"
-down_revision = "0004"
+revision = "0006"
+down_revision = "0005"
 branch_labels = None
 depends_on = None
 
