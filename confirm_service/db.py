@@ -6,19 +6,25 @@ that concurrent writers queue instead of failing on lock upgrade.
 
 from __future__ import annotations
 
+import logging
 from collections.abc import Iterator
-from contextlib import contextmanager
+from contextlib import contextmanager, suppress
 from pathlib import Path
 from typing import Any
 
 from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.engine import make_url
+from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
 from confirm_service.config import PACKAGE_DIR, ConfigError
+from confirm_service.errors import Unavailable
 
+logger = logging.getLogger(__name__)
 MIGRATIONS_DIR = PACKAGE_DIR / "migrations"
 _WRITE_OPTION = "confirm_write"
+POSTGRES_CONNECT_TIMEOUT_S = 10
+"""A PostgreSQL server that does not answer within this time counts as unreachable."""
 
 
 def _install_sqlite_pragmas(engine: Engine) -> None:
@@ -47,11 +53,26 @@ def make_engine(database_url: str) -> Engine:
     url = make_url(database_url)
     if url.get_backend_name() == "sqlite":
         if url.database and url.database != ":memory:":
-            Path(url.database).parent.mkdir(parents=True, exist_ok=True)
+            # An unusable path is not fatal here: every session then answers "unavailable".
+            with suppress(OSError):
+                Path(url.database).parent.mkdir(parents=True, exist_ok=True)
         engine = create_engine(url, connect_args={"timeout": 30})
         _install_sqlite_pragmas(engine)
         return engine
-    return create_engine(url, pool_pre_ping=True, pool_size=10, max_overflow=20)
+    return create_engine(
+        url,
+        pool_pre_ping=True,
+        pool_size=10,
+        max_overflow=20,
+        connect_args={"connect_timeout": POSTGRES_CONNECT_TIMEOUT_S},
+    )
+
+
+def _unavailable(exc: OperationalError) -> Unavailable:
+    """The operator's reason stays in the log; the client learns only that it may retry."""
+    reason = str(exc.orig).strip().splitlines()[0] if exc.orig else type(exc).__name__
+    logger.warning("database unavailable: %s", reason)
+    return Unavailable("the database is unavailable; try again later")
 
 
 class Database:
@@ -74,6 +95,8 @@ class Database:
         session = self._read()
         try:
             yield session
+        except OperationalError as exc:
+            raise _unavailable(exc) from exc
         finally:
             session.close()
 
@@ -84,6 +107,10 @@ class Database:
         try:
             yield session
             session.commit()
+        except OperationalError as exc:
+            with suppress(Exception):
+                session.rollback()
+            raise _unavailable(exc) from exc
         except BaseException:
             session.rollback()
             raise

@@ -328,10 +328,8 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
             ("pipeline-tfo", "pipeline"),
             ("coordinator-a", "coordinator"),
             ("coordinator-b", "coordinator"),
-            ("site-tfo", "site"),
         ]:
-            site_code = "TFO" if role == "site" else None
-            _, secrets[name] = create_token(session, SYSTEM, name, role, site_code)
+            _, secrets[name] = create_token(session, SYSTEM, name, role)
     client = app.test_client()
 
     def call(method: str, path: str, who: str, body: Any = None) -> Any:
@@ -347,6 +345,8 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     for target in TARGETS:
         call("POST", "/api/v1/targets", "coordinator-a", target)
     say(f"registered {len(SITES)} sites and {len(TARGETS)} targets")
+    with db.write() as session:  # a site token names a registered site
+        _, secrets["site-tfo"] = create_token(session, SYSTEM, "site-tfo", "site", "TFO")
     detections = 0
     *scans, (partner_label, partner_scan) = scenario_scans()
     for label, scan in scans:

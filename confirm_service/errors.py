@@ -57,3 +57,10 @@ class TooLarge(ServiceError):
 class Forbidden(ServiceError):
     status = 403
     title = "Forbidden"
+
+
+class Unavailable(ServiceError):
+    """A resource the service needs (the database) does not answer; the client may retry."""
+
+    status = 503
+    title = "Service unavailable"

@@ -120,13 +120,33 @@ def client(app: Any) -> Any:
 
 @pytest.fixture
 def tokens(db: Any) -> dict[str, str]:
-    """A live token secret for every role."""
+    """A live token secret for every role; the site token belongs to site ``PRA``.
+
+    ``create_token`` wants a site token's site registered first, but most tests register the
+    invented sites themselves afterwards (``factories.setup_log``), so that one row is written
+    directly, with its audit entry as ``create_token`` writes it.
+    """
     from confirm_service.actor import SYSTEM
-    from confirm_service.services.tokens import create_token
+    from confirm_service.audit.log import record
+    from confirm_service.models import ApiToken
+    from confirm_service.services.tokens import TOKEN_PREFIX, create_token, hash_secret
 
     secrets = {}
     with db.write() as session:
         for role in ROLES:
+            if role == "site":
+                secrets[role] = f"{TOKEN_PREFIX}test-site-secret-{os.urandom(16).hex()}"
+                row = ApiToken(
+                    name="test-site",
+                    role="site",
+                    site_code="PRA",
+                    secret_sha256=hash_secret(secrets[role]),
+                )
+                session.add(row)
+                session.flush()
+                payload = {"name": row.name, "role": "site", "site": "PRA"}
+                record(session, SYSTEM, "token.created", f"token:{row.id}", payload)
+                continue
             _, secrets[role] = create_token(session, SYSTEM, f"test-{role}", role)
     return secrets
 

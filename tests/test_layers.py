@@ -26,7 +26,7 @@ LAYERS: tuple[tuple[str, ...], ...] = (
     ("dossier",),
     ("api", "web", "scheduler", "migrations"),
     ("app",),
-    ("demo", "wsgi"),
+    ("demo", "wsgi", "serving"),
     ("synthetic",),
     ("cli",),
 )

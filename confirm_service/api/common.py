@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import functools
 import hashlib
+import re
 from collections.abc import Callable
+from json import loads as json_loads
 from typing import Any, TypeVar
 
 from flask import Response, current_app, g, json, request
@@ -13,7 +15,7 @@ from pydantic import BaseModel, TypeAdapter, ValidationError
 from confirm_service.actor import Actor
 from confirm_service.api.problems import problem_response, validation_errors
 from confirm_service.db import Database
-from confirm_service.errors import ServiceError
+from confirm_service.errors import Invalid, ServiceError
 from confirm_service.services import access, tokens
 
 M = TypeVar("M")
@@ -33,11 +35,56 @@ def settings() -> Any:
     return current_app.extensions["confirm.settings"]
 
 
+UTF8_NAMES = ("utf-8", "utf8")
+MAX_JSON_DEPTH = 200
+"""Nesting limit of pydantic-core's JSON parser (its recursion limit); no request schema comes
+near it, so a deeper body is hostile and refused before anything else reads it."""
+_SPACE_BEFORE_COLON = re.compile(rb'"\s+:')
+
+
+class DuplicateKey(ValueError):
+    """An object in the body names the same key twice."""
+
+
 def raw_json_body() -> bytes:
-    """The request body, refused unless it is declared and is JSON."""
+    """The request body, refused unless it is declared as JSON in UTF-8 (RFC 8259 section 8.1)."""
     if request.mimetype != "application/json":
         raise UnsupportedBody("Content-Type must be application/json")
+    charset = request.mimetype_params.get("charset")
+    if charset is not None and charset.lower() not in UTF8_NAMES:
+        raise UnsupportedBody(f"JSON is read as UTF-8 only, not {charset!r}")
     return request.get_data(cache=True)
+
+
+def _refuse_pairs_twice(pairs: list[tuple[str, Any]]) -> None:
+    if len(pairs) > 1 and len({key for key, _ in pairs}) != len(pairs):
+        seen: set[str] = set()
+        for key, _ in pairs:
+            if key in seen:
+                raise DuplicateKey(key)
+            seen.add(key)
+
+
+def _key_count(text: bytes) -> int | None:
+    """Keys in a JSON text: each is a string followed by a colon. None when the text has
+    escapes or spaces before colons, which make that count unsafe."""
+    if b"\\" in text or _SPACE_BEFORE_COLON.search(text):
+        return None
+    return text.count(b'":')
+
+
+def refuse_duplicate_keys(raw: bytes, serialised_again: bytes) -> None:
+    """Raise :class:`DuplicateKey` if an object of ``raw`` repeats a key.
+
+    JSON parsers keep the last of two equal keys silently, so a body could say two things. The
+    fast path compares the number of keys in the body with that in the validated value written
+    back (which keeps each given key once); only when they differ is the body parsed again in
+    Python to find the repeated key.
+    """
+    count = _key_count(raw)
+    if count is not None and count == _key_count(serialised_again):
+        return
+    json_loads(raw, object_pairs_hook=_refuse_pairs_twice)
 
 
 def parse_body(schema: type[M] | TypeAdapter[M]) -> M:
@@ -46,10 +93,19 @@ def parse_body(schema: type[M] | TypeAdapter[M]) -> M:
     adapter = schema if isinstance(schema, TypeAdapter) else None
     try:
         if adapter is not None:
-            return adapter.validate_json(raw)
-        return schema.model_validate_json(raw)  # type: ignore[union-attr]
+            value = adapter.validate_json(raw)
+            again = adapter.dump_json(value, exclude_unset=True, by_alias=True)
+        else:
+            value = schema.model_validate_json(raw)  # type: ignore[union-attr]
+            again = value.model_dump_json(exclude_unset=True, by_alias=True).encode()  # type: ignore[attr-defined]
     except ValidationError as exc:
-        if any(e["type"] == "json_invalid" for e in exc.errors()):
+        invalid = [e["msg"] for e in exc.errors() if e["type"] == "json_invalid"]
+        if any("recursion limit" in message for message in invalid):
+            raise Invalid(
+                "the body is nested too deeply",
+                [("body", f"JSON nested deeper than {MAX_JSON_DEPTH} levels")],
+            ) from None
+        if invalid:
             raise UnsupportedBody("the body is not valid JSON") from None
         if any(e["type"] in ("model_type", "dict_type") and not e["loc"] for e in exc.errors()):
             raise ServiceError(
@@ -65,6 +121,16 @@ def parse_body(schema: type[M] | TypeAdapter[M]) -> M:
             422,
             "Unprocessable content",
         ) from None
+    try:
+        refuse_duplicate_keys(raw, again)
+    except DuplicateKey as exc:
+        raise ServiceError(
+            "the body names a key twice",
+            [("body", f"duplicate key {exc.args[0]!r}")],
+            422,
+            "Unprocessable content",
+        ) from None
+    return value
 
 
 def body_sha256() -> str:
@@ -129,7 +195,7 @@ def authenticate_request() -> Response | None:
             return problem_response(
                 401,
                 "Unauthorized",
-                "the token is unknown or revoked",
+                "the token is unknown, revoked or expired",
                 [("Authorization", "invalid token")],
                 challenge,
             )

@@ -45,7 +45,7 @@ IDEMPOTENCY_HEADER = {
 def _idempotent(produce: Callable[[Any], tuple[int, dict[str, Any]]]) -> Response:
     """Run ``produce(session)`` in one write transaction, at most once per Idempotency-Key."""
     key = request.headers.get("Idempotency-Key")
-    scope = f"{current_actor().name}:{request.method}:{request.path}"
+    scope = f"token:{current_actor().token_id}:{request.method}:{request.path}"
     digest = body_sha256()
     db = database()
     try:

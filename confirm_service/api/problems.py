@@ -11,6 +11,8 @@ from werkzeug.exceptions import HTTPException
 from confirm_service.errors import ServiceError
 
 PROBLEM_MEDIA_TYPE = "application/problem+json"
+RETRY_AFTER_S = 10
+"""Sent as ``Retry-After`` with every 503 (RFC 9110 section 10.2.3)."""
 
 
 def problem_response(
@@ -50,6 +52,12 @@ def validation_errors(exc: ValidationError, prefix: str = "") -> list[tuple[str,
 
 
 def install_problem_handlers(app: Flask) -> None:
+    @app.after_request
+    def _retry_after(response: Response) -> Response:
+        if response.status_code == 503:
+            response.headers.setdefault("Retry-After", str(RETRY_AFTER_S))
+        return response
+
     @app.errorhandler(ServiceError)
     def _service_error(exc: ServiceError) -> Response:
         return problem_response(exc.status, exc.title, exc.detail, exc.errors)

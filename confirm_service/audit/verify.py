@@ -54,6 +54,11 @@ class VerificationReport:
 
     def summary(self) -> str:
         """One line for an operator."""
+        if self.ok and self.checkpoints_checked == 0:
+            return (
+                f"audit log intact: {self.entries_checked} entries verified; no checkpoint "
+                "exists yet, so no signature vouches for them"
+            )
         if self.ok:
             line = (
                 f"audit log intact: {self.entries_checked} entries and "
@@ -83,9 +88,9 @@ class _Finding:
 class _Walk:
     """State of one pass over the log."""
 
-    def __init__(self, public_key_pem: str, checkpoints: list[AuditCheckpoint]) -> None:
+    def __init__(self, public_key_pem: str | None, checkpoints: list[AuditCheckpoint]) -> None:
         self.public_key_pem = public_key_pem
-        self.expected_key_id = key_id(load_public_key_pem(public_key_pem))
+        self.expected_key_id = key_id(load_public_key_pem(public_key_pem)) if public_key_pem else ""
         self.pending = deque(checkpoints)  # sorted by (tree_size, id)
         self.accumulator = MerkleAccumulator()
         self.previous_at: datetime | None = None
@@ -139,6 +144,8 @@ class _Walk:
         unvouched = self.good_size + 1 if self.good_size < size else None
         span = _span(self.good_size + 1, size)
         not_vouched = f"; {span} not vouched for by a valid checkpoint" if unvouched else ""
+        if self.public_key_pem is None:
+            return _Finding(unvouched, f"{label} cannot be checked: no public key given", row.id)
         try:
             signed = as_checkpoint(row)
         except ValueError as exc:
@@ -200,11 +207,13 @@ class _Walk:
 
 
 def verify_log(
-    session: Session, public_key_pem: str, batch_size: int = store.DEFAULT_BATCH_SIZE
+    session: Session, public_key_pem: str | None, batch_size: int = store.DEFAULT_BATCH_SIZE
 ) -> VerificationReport:
     """Recompute every leaf hash, root and signature; report the first problem (module doc).
 
-    Raises :class:`ValueError` if ``public_key_pem`` is not an Ed25519 public key.
+    ``public_key_pem`` None checks the entries alone, for a log with no checkpoint yet (a
+    checkpoint found then is reported as unverifiable). Raises :class:`ValueError` if
+    ``public_key_pem`` is not an Ed25519 public key.
     """
     checkpoints = list(
         session.execute(

@@ -32,11 +32,17 @@ def audit_group() -> None:
     "An auditor should pass a copy obtained independently of the server.",
 )
 def verify(public_key_file: Path | None) -> None:
-    """Recompute every entry, root and signature; exit 1 naming the first bad entry."""
-    pem = _verifying_key_pem(public_key_file)
+    """Recompute every entry, root and signature; exit 1 naming the first bad entry.
+
+    Before the first checkpoint there is no key yet: the entries are checked alone.
+    """
     database = open_database()
     try:
         with database.read() as session:
+            if public_key_file is None and checkpoints.latest_checkpoint(session) is None:
+                pem = _verifying_key_pem_if_any()
+            else:
+                pem = _verifying_key_pem(public_key_file)
             report = verify_log(session, pem)
     finally:
         database.dispose()
@@ -130,6 +136,13 @@ def _verifying_key_pem(public_key_file: Path | None) -> str:
         raise ConfigError(f"no signing key at {key_file}; pass --public-key FILE") from None
     except ValueError as exc:
         raise ConfigError(f"signing key {key_file} unusable: {exc}") from None
+
+
+def _verifying_key_pem_if_any() -> str | None:
+    """The instance key's public half, or None when no key was created yet."""
+    if not settings().resolved_signing_key_file().exists():
+        return None
+    return _verifying_key_pem(None)
 
 
 def _echo_checkpoint(label: str, document: dict[str, Any]) -> None:

@@ -9,6 +9,7 @@ from confirm_service.cli import main
 from confirm_service.cli.context import open_database
 from confirm_service.schemas.queries import CandidateQuery
 from confirm_service.services import candidate_views as views
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_and_mjd
 
 
@@ -25,9 +26,7 @@ def candidates_group() -> None:
 
 
 @candidates_group.command("list")
-@click.option(
-    "--state", default=None, type=click.Choice(["open", "rejected", "confirmed", "withdrawn"])
-)
+@click.option("--state", default=None, type=click.Choice([state.value for state in CandidateState]))
 @click.option("--stage", default=None)
 @click.option("--target", default=None, help="Exact target name.")
 @click.option("--site", default=None, help="A site code where the candidate has hits.")

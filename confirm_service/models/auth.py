@@ -16,18 +16,19 @@ __all__ = ["ROLES", "ApiToken", "IdempotencyRecord"]
 
 
 class ApiToken(Base):
-    """A bearer token. Only the SHA-256 of the secret is stored."""
+    """A bearer token. Only the SHA-256 of the secret is stored; the name is unique."""
 
     __tablename__ = "api_tokens"
 
     id: Mapped[int] = mapped_column(primary_key=True)
-    name: Mapped[str] = mapped_column(String(200))
+    name: Mapped[str] = mapped_column(String(200), unique=True)
     role: Mapped[str] = mapped_column(String(32))
     secret_sha256: Mapped[str] = mapped_column(String(64), unique=True)
     site_code: Mapped[str | None] = mapped_column(String(32))
     created_at: Mapped[datetime] = mapped_column(default=utc_now)
     last_used_at: Mapped[datetime | None]
     revoked_at: Mapped[datetime | None]
+    expires_at: Mapped[datetime | None]
 
 
 class IdempotencyRecord(Base):

@@ -6,6 +6,7 @@ from typing import Annotated
 
 from pydantic import BaseModel, Field
 
+from confirm_service.schemas.bounds import INT64_MAX
 from confirm_service.schemas.common import StrictModel
 
 HexHash = Annotated[
@@ -84,10 +85,13 @@ class PublicKeyOut(BaseModel):
 
 class EntryProofQuery(StrictModel):
     tree_size: int | None = Field(
-        None, ge=0, description="size of the checkpoint to prove against; default the latest"
+        None,
+        ge=0,
+        le=INT64_MAX,
+        description="size of the checkpoint to prove against; default the latest",
     )
 
 
 class ConsistencyQuery(StrictModel):
-    old: int = Field(ge=0, description="tree size of the older checkpoint")
-    new: int = Field(ge=0, description="tree size of the newer checkpoint")
+    old: int = Field(ge=0, le=INT64_MAX, description="tree size of the older checkpoint")
+    new: int = Field(ge=0, le=INT64_MAX, description="tree size of the newer checkpoint")

@@ -6,6 +6,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from confirm_service.schemas.bounds import RowId
 from confirm_service.schemas.common import StrictModel, UtcIso
 from confirm_service.schemas.followups import ReportIn as ReportIn  # the report contract
 from confirm_service.schemas.followups import ReportOut as ReportOut  # lives with follow-ups
@@ -124,7 +125,7 @@ class CandidateOut(CandidateSummary):
 
 
 class PromoteIn(StrictModel):
-    detection_id: Annotated[int, Field(ge=1)]
+    detection_id: RowId
     note: Text | None = None
 
 

@@ -3,9 +3,17 @@
 from __future__ import annotations
 
 from datetime import datetime
-from typing import Annotated, Generic, TypeVar
+from typing import Annotated, Any, Generic, TypeVar
 
-from pydantic import AwareDatetime, BaseModel, ConfigDict, Field, PlainSerializer
+from pydantic import (
+    AfterValidator,
+    AwareDatetime,
+    BaseModel,
+    ConfigDict,
+    Field,
+    PlainSerializer,
+    field_validator,
+)
 
 Finite = Annotated[float, Field(allow_inf_nan=False)]
 Positive = Annotated[float, Field(gt=0, allow_inf_nan=False)]
@@ -24,10 +32,38 @@ UtcIso = Annotated[
 AwareTime = AwareDatetime
 
 
+def refuse_nul(value: Any) -> Any:
+    """Refuse a NUL character in a string, or in any string inside lists and mappings.
+
+    PostgreSQL cannot store NUL in text and SQLite would store it silently; no name, code or note
+    needs it. The one rule for every string of every request.
+    """
+    if isinstance(value, str):
+        if "\x00" in value:
+            raise ValueError("must not contain a NUL character")
+    elif isinstance(value, list | tuple):
+        for item in value:
+            refuse_nul(item)
+    elif isinstance(value, dict):
+        for key, item in value.items():
+            refuse_nul(key)
+            refuse_nul(item)
+    return value
+
+
+NoNul = AfterValidator(refuse_nul)
+"""The same rule for string fields outside a :class:`StrictModel` (TypedDict rows)."""
+
+
 class StrictModel(BaseModel):
-    """Request bodies: unknown fields are refused."""
+    """Request bodies and queries: unknown fields are refused, and no string holds NUL."""
 
     model_config = ConfigDict(extra="forbid")
+
+    @field_validator("*", mode="after")
+    @classmethod
+    def _no_nul_character(cls, value: Any) -> Any:
+        return refuse_nul(value)
 
 
 class OutModel(BaseModel):

@@ -8,11 +8,18 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, Field, StrictBool, model_validator
 from pydantic_core import PydanticCustomError
 
+from confirm_service.schemas.bounds import (
+    DriftHzS,
+    DurationS,
+    FrequencyHz,
+    ObservationTime,
+    RowId,
+    Snr,
+)
 from confirm_service.schemas.common import (
     AwareTime,
     Code,
     Declination,
-    Finite,
     Positive,
     RightAscension,
     StrictModel,
@@ -48,19 +55,19 @@ class ReportIn(StrictModel):
     site: Code | None = None
     observed: StrictBool = True
     not_observed_reason: NotObservedReason | None = None
-    observed_at: AwareTime | None = None
-    duration_s: Positive | None = None
+    observed_at: ObservationTime | None = None
+    duration_s: DurationS | None = None
     detected: StrictBool = False
-    frequency_hz: Positive | None = None
-    drift_hz_s: Finite | None = None
-    frequency_min_hz: Positive | None = None
-    frequency_max_hz: Positive | None = None
-    threshold_snr: Positive | None = None
+    frequency_hz: FrequencyHz | None = None
+    drift_hz_s: DriftHzS | None = None
+    frequency_min_hz: FrequencyHz | None = None
+    frequency_max_hz: FrequencyHz | None = None
+    threshold_snr: Snr | None = None
     sefd_jy: Positive | None = None
     pointing_ra_deg: RightAscension | None = None
     pointing_dec_deg: Declination | None = None
     observation: ObservationIn | None = None
-    observation_id: Annotated[int, Field(gt=0)] | None = None
+    observation_id: RowId | None = None
     notes: Annotated[str, Field(max_length=10_000)] | None = None
 
     @model_validator(mode="after")

@@ -15,23 +15,37 @@ from pydantic import (
 )
 from typing_extensions import TypedDict
 
+from confirm_service.schemas.bounds import (
+    DistancePc,
+    DriftHzS,
+    DurationS,
+    ElevationM,
+    EpochTime,
+    FrequencyHz,
+    ObservationTime,
+    ParallaxMas,
+    ProperMotionMasYr,
+    Snr,
+    SpectralWidthHz,
+    TimeOffsetS,
+    TimeResolutionS,
+)
 from confirm_service.schemas.common import (
-    AwareTime,
     Code,
     Declination,
-    Finite,
     Latitude,
     Longitude,
     Name,
-    NonNegative,
+    NoNul,
     OutModel,
-    Positive,
     RightAscension,
     StrictModel,
     UtcIso,
 )
 
-Band = Annotated[list[Positive], Field(min_length=2, max_length=2)]
+Band = Annotated[list[FrequencyHz], Field(min_length=2, max_length=2)]
+MinElevationDeg = Annotated[float, Field(ge=-10, le=90, allow_inf_nan=False)]
+SunAvoidanceDeg = Annotated[float, Field(ge=0, le=180, allow_inf_nan=False)]
 
 
 class SiteIn(StrictModel):
@@ -39,9 +53,9 @@ class SiteIn(StrictModel):
     name: Name
     latitude_deg: Latitude
     longitude_deg: Longitude
-    elevation_m: Annotated[float, Field(ge=-500, le=10_000, allow_inf_nan=False)]
-    min_elevation_deg: Annotated[float, Field(ge=-10, le=90, allow_inf_nan=False)] = 10.0
-    sun_avoidance_deg: Annotated[float, Field(ge=0, le=180, allow_inf_nan=False)] = 5.0
+    elevation_m: ElevationM
+    min_elevation_deg: MinElevationDeg = 10.0
+    sun_avoidance_deg: SunAvoidanceDeg = 5.0
     webhook_url: Annotated[str, Field(max_length=2000, pattern=r"^https?://")] | None = None
     email: Annotated[str, Field(max_length=320, pattern=r"^[^@\s]+@[^@\s]+$")] | None = None
     receiver_bands_hz: list[Band] = []
@@ -55,12 +69,15 @@ class SiteIn(StrictModel):
 
 
 class SiteUpdate(StrictModel):
-    name: Name | None = None
-    latitude_deg: Latitude | None = None
-    longitude_deg: Longitude | None = None
-    elevation_m: Annotated[float, Field(ge=-500, le=10_000, allow_inf_nan=False)] | None = None
-    min_elevation_deg: Annotated[float, Field(ge=-10, le=90, allow_inf_nan=False)] | None = None
-    sun_avoidance_deg: Annotated[float, Field(ge=0, le=180, allow_inf_nan=False)] | None = None
+    """Fields to change. A column that cannot be empty takes no ``null`` (the default only
+    stands for "absent": pydantic does not validate defaults)."""
+
+    name: Name = Field(None)
+    latitude_deg: Latitude = Field(None)
+    longitude_deg: Longitude = Field(None)
+    elevation_m: ElevationM = Field(None)
+    min_elevation_deg: MinElevationDeg = Field(None)
+    sun_avoidance_deg: SunAvoidanceDeg = Field(None)
     webhook_url: Annotated[str, Field(max_length=2000, pattern=r"^https?://")] | None = None
     email: Annotated[str, Field(max_length=320, pattern=r"^[^@\s]+@[^@\s]+$")] | None = None
     receiver_bands_hz: list[Band] | None = None
@@ -86,21 +103,23 @@ class TargetIn(StrictModel):
     name: Name
     ra_deg: RightAscension
     dec_deg: Declination
-    pm_ra_mas_yr: Finite | None = None
-    pm_dec_mas_yr: Finite | None = None
-    parallax_mas: Positive | None = None
-    distance_pc: Positive | None = None
-    epoch: AwareTime | None = None
+    pm_ra_mas_yr: ProperMotionMasYr | None = None
+    pm_dec_mas_yr: ProperMotionMasYr | None = None
+    parallax_mas: ParallaxMas | None = None
+    distance_pc: DistancePc | None = None
+    epoch: EpochTime | None = None
 
 
 class TargetUpdate(StrictModel):
-    ra_deg: RightAscension | None = None
-    dec_deg: Declination | None = None
-    pm_ra_mas_yr: Finite | None = None
-    pm_dec_mas_yr: Finite | None = None
-    parallax_mas: Positive | None = None
-    distance_pc: Positive | None = None
-    epoch: AwareTime | None = None
+    """Fields to change; ``ra_deg`` and ``dec_deg`` take no ``null`` (see :class:`SiteUpdate`)."""
+
+    ra_deg: RightAscension = Field(None)
+    dec_deg: Declination = Field(None)
+    pm_ra_mas_yr: ProperMotionMasYr | None = None
+    pm_dec_mas_yr: ProperMotionMasYr | None = None
+    parallax_mas: ParallaxMas | None = None
+    distance_pc: DistancePc | None = None
+    epoch: EpochTime | None = None
 
 
 class TargetOut(OutModel):
@@ -126,12 +145,12 @@ class DetectionIn(TypedDict):
     """
 
     __pydantic_config__ = ConfigDict(extra="forbid")  # type: ignore[misc]
-    frequency_hz: Positive
-    drift_hz_s: Finite
-    snr: NonNegative
-    time_offset_s: NotRequired[NonNegative]
-    bandwidth_hz: NotRequired[Positive | None]
-    beam: NotRequired[Annotated[str, Field(max_length=64)] | None]
+    frequency_hz: FrequencyHz
+    drift_hz_s: DriftHzS
+    snr: Snr
+    time_offset_s: NotRequired[TimeOffsetS]
+    bandwidth_hz: NotRequired[SpectralWidthHz | None]
+    beam: NotRequired[Annotated[str, Field(max_length=64), NoNul] | None]
     candidate: NotRequired[StrictBool]
 
 
@@ -174,12 +193,12 @@ class ObservationIn(StrictModel):
     target: Name | None = None
     pointing_ra_deg: RightAscension | None = None
     pointing_dec_deg: Declination | None = None
-    start: AwareTime
-    duration_s: Positive
-    frequency_min_hz: Positive
-    frequency_max_hz: Positive
-    channel_width_hz: Positive
-    time_resolution_s: Positive
+    start: ObservationTime
+    duration_s: DurationS
+    frequency_min_hz: FrequencyHz
+    frequency_max_hz: FrequencyHz
+    channel_width_hz: SpectralWidthHz
+    time_resolution_s: TimeResolutionS
     on_source: StrictBool
     beam: Annotated[str, Field(max_length=64)] | None = None
     cadence: Annotated[str, Field(max_length=128)] | None = None

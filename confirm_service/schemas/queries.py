@@ -6,10 +6,13 @@ from typing import Annotated
 
 from pydantic import AwareDatetime, Field
 
+from confirm_service.schemas.bounds import ROW_ID_MAX
 from confirm_service.schemas.common import StrictModel
 
 Limit = Annotated[int, Field(ge=1, le=1000, description="items per page, at most 1,000")]
-After = Annotated[int, Field(ge=0, description="cursor: return items with id greater than this")]
+After = Annotated[
+    int, Field(ge=0, le=ROW_ID_MAX, description="cursor: return items with id greater than this")
+]
 
 
 class ListQuery(StrictModel):

@@ -4,35 +4,44 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from pydantic import AwareDatetime, Field
+from pydantic import Field
 
-from confirm_service.schemas.common import Finite, StrictModel, UtcIso
+from confirm_service.schemas.bounds import (
+    DriftHzS,
+    DriftUncertaintyHzS,
+    ElevationM,
+    FrequencyHz,
+    ObservationTime,
+)
+from confirm_service.schemas.common import Latitude, Longitude, StrictModel, UtcIso
 
 
 class SiteQuery(StrictModel):
     site: str | None = Field(None, description="registered site code, or give site_lat/site_lon")
-    site_lat: Annotated[float, Field(ge=-90, le=90)] | None = Field(None, description="deg")
-    site_lon: Finite | None = Field(None, description="deg, east positive")
-    site_height: Finite | None = Field(None, description="m above the WGS84 ellipsoid")
+    site_lat: Latitude | None = Field(None, description="deg")
+    site_lon: Longitude | None = Field(None, description="deg, east positive")
+    site_height: ElevationM | None = Field(None, description="m above the WGS84 ellipsoid")
     target: str | None = Field(None, description="registered target name, or give ra/dec")
     ra: Annotated[float, Field(ge=0, lt=360)] | None = Field(None, description="ICRS deg")
     dec: Annotated[float, Field(ge=-90, le=90)] | None = Field(None, description="ICRS deg")
 
 
 class PredictionQuery(SiteQuery):
-    time: AwareDatetime = Field(description="ISO 8601 with offset: when the signal was seen")
-    observed_frequency_hz: Annotated[float, Field(gt=0, allow_inf_nan=False)]
-    observed_drift_hz_s: Finite | None = None
-    drift_uncertainty_hz_s: Annotated[float, Field(ge=0, allow_inf_nan=False)] | None = None
+    time: ObservationTime = Field(
+        description="ISO 8601 with offset, 1950 to 2200: when the signal was seen"
+    )
+    observed_frequency_hz: FrequencyHz
+    observed_drift_hz_s: DriftHzS | None = None
+    drift_uncertainty_hz_s: DriftUncertaintyHzS | None = None
     to_site: str | None = None
-    to_site_lat: Annotated[float, Field(ge=-90, le=90)] | None = None
-    to_site_lon: Finite | None = None
-    to_site_height: Finite | None = None
-    to_time: AwareDatetime | None = None
+    to_site_lat: Latitude | None = None
+    to_site_lon: Longitude | None = None
+    to_site_height: ElevationM | None = None
+    to_time: ObservationTime | None = None
 
 
 class VisibilityQuery(SiteQuery):
-    from_: AwareDatetime = Field(alias="from", description="ISO 8601 with offset")
+    from_: ObservationTime = Field(alias="from", description="ISO 8601 with offset, 1950 to 2200")
     days: Annotated[float, Field(gt=0, le=366)] = 1.0
     min_elevation_deg: Annotated[float, Field(ge=-10, le=90)] | None = None
     sun_avoidance_deg: Annotated[float, Field(ge=0, le=180)] | None = None

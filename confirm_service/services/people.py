@@ -110,9 +110,9 @@ def active_actor(session: Session, person_id: int) -> Actor | None:
 
 
 def live_token(session: Session, token_id: int) -> ApiToken | None:
-    """The token with this id unless it is revoked."""
+    """The token with this id unless it is revoked or expired."""
     token = session.get(ApiToken, token_id)
-    return None if token is None or token.revoked_at is not None else token
+    return token if token is not None and tokens.is_live(token) else None
 
 
 def list_people(session: Session) -> list[Person]:

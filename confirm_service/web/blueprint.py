@@ -40,16 +40,6 @@ bp = Blueprint(
 
 PREFIX = "/dashboard"
 PUBLIC_ENDPOINTS = {"dashboard.sign_in", "dashboard.static"}
-PAGE_POLICY = (
-    "default-src 'none'; style-src 'self'; img-src 'self' data:; form-action 'self'; "
-    "frame-ancestors 'none'; base-uri 'none'"
-)
-SECURITY_HEADERS = {
-    "Content-Security-Policy": PAGE_POLICY,
-    "X-Content-Type-Options": "nosniff",
-    "Referrer-Policy": "no-referrer",
-    "X-Frame-Options": "DENY",
-}
 PAGES = (
     ("dashboard.candidates", "Attention and candidates"),
     ("dashboard.sites", "Sites"),
@@ -108,8 +98,7 @@ def _require_sign_in() -> Any:
 
 
 def _with_headers(response: Response) -> Response:
-    for name, value in SECURITY_HEADERS.items():
-        response.headers.setdefault(name, value)
+    """Pages are not cached; the security headers come from the app-wide hook in app.py."""
     if request.endpoint != "dashboard.static":
         response.headers.setdefault("Cache-Control", "no-store")
     return response

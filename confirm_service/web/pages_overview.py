@@ -12,13 +12,14 @@ from pydantic import ValidationError
 from confirm_service.schemas.queries import CandidateQuery
 from confirm_service.services import attention, candidate_views
 from confirm_service.services import sites as site_service
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import mjd_utc, utc_now
 from confirm_service.web import auth
 from confirm_service.web.blueprint import bp, database
 
 LIST_LIMIT = 50
 EXPORT_LIMIT = 1000
-STATES = ("open", "confirmed", "rejected", "withdrawn")
+STATES = tuple(state.value for state in CandidateState)
 FILTERS = ("q", "state", "stage", "target", "site", "frequency_hz", "tolerance_hz")
 
 

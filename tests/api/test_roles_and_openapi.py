@@ -133,7 +133,8 @@ def test_openapi_document_lists_every_route(client, app, auth):
     assert schema_ref["$ref"].rsplit("/", 1)[-1] in document["components"]["schemas"]
     detection = document["components"]["schemas"]["DetectionIn"]
     assert set(detection["required"]) == {"frequency_hz", "drift_hz_s", "snr"}
-    assert detection["properties"]["frequency_hz"]["exclusiveMinimum"] == 0
+    frequency = detection["properties"]["frequency_hz"]
+    assert (frequency["minimum"], frequency["maximum"]) == (1e6, 1e12)  # schemas/bounds.py
     for path, operations in document["paths"].items():
         for operation in operations.values():
             for response in operation["responses"].values():

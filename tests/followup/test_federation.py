@@ -54,9 +54,8 @@ class Instance:
         self.db = Database(self.database_url)
         self.tokens: dict[str, str] = {}
         with self.db.write() as session:
-            for role in ("coordinator", "pipeline", "site"):
-                site = code if role == "site" else None
-                _, self.tokens[role] = create_token(session, SYSTEM, f"{code}-{role}", role, site)
+            for role in ("coordinator", "pipeline"):
+                _, self.tokens[role] = create_token(session, SYSTEM, f"{code}-{role}", role)
         self.log = (folder / "server.log").open("w")
         self.process: subprocess.Popen[bytes] | None = None
 
@@ -143,6 +142,8 @@ def test_two_instances_request_and_report_to_each_other(tmp_path):
                 == 201
             )
         assert a.call("POST", "/api/v1/targets", "coordinator", TARGETS[0])[0] == 201
+        with b.db.write() as session:  # a site token names a registered site
+            _, b.tokens["site"] = create_token(session, SYSTEM, "TFO-site", "site", "TFO")
         with a.db.write() as session:
             set_partner_secret(session, SYSTEM, "TFO", SHARED)
         with b.db.write() as session:
