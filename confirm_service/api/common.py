@@ -97,7 +97,7 @@ def parse_body(schema: type[M] | TypeAdapter[M]) -> M:
             again = adapter.dump_json(value, exclude_unset=True, by_alias=True)
         else:
             value = schema.model_validate_json(raw)  # type: ignore[union-attr]
-            again = value.model_dump_json(exclude_unset=True, by_alias=True).encode()  # type: ignore[attr-defined]
+            again = value.model_dump_json(exclude_unset=True, by_alias=True).encode()
     except ValidationError as exc:
         invalid = [e["msg"] for e in exc.errors() if e["type"] == "json_invalid"]
         if any("recursion limit" in message for message in invalid):

@@ -72,12 +72,12 @@ class SiteUpdate(StrictModel):
     """Fields to change. A column that cannot be empty takes no ``null`` (the default only
     stands for "absent": pydantic does not validate defaults)."""
 
-    name: Name = Field(None)
-    latitude_deg: Latitude = Field(None)
-    longitude_deg: Longitude = Field(None)
-    elevation_m: ElevationM = Field(None)
-    min_elevation_deg: MinElevationDeg = Field(None)
-    sun_avoidance_deg: SunAvoidanceDeg = Field(None)
+    name: Name = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    latitude_deg: Latitude = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    longitude_deg: Longitude = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    elevation_m: ElevationM = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    min_elevation_deg: MinElevationDeg = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    sun_avoidance_deg: SunAvoidanceDeg = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
     webhook_url: Annotated[str, Field(max_length=2000, pattern=r"^https?://")] | None = None
     email: Annotated[str, Field(max_length=320, pattern=r"^[^@\s]+@[^@\s]+$")] | None = None
     receiver_bands_hz: list[Band] | None = None
@@ -113,8 +113,8 @@ class TargetIn(StrictModel):
 class TargetUpdate(StrictModel):
     """Fields to change; ``ra_deg`` and ``dec_deg`` take no ``null`` (see :class:`SiteUpdate`)."""
 
-    ra_deg: RightAscension = Field(None)
-    dec_deg: Declination = Field(None)
+    ra_deg: RightAscension = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
+    dec_deg: Declination = Field(None)  # type: ignore[assignment]  # absent allowed, null refused
     pm_ra_mas_yr: ProperMotionMasYr | None = None
     pm_dec_mas_yr: ProperMotionMasYr | None = None
     parallax_mas: ParallaxMas | None = None
