@@ -159,6 +159,51 @@ class SkyFixedSignal:
         }
 
 
+@dataclass(frozen=True)
+class Instrument:
+    """A receiver's scan settings (invented): scan length (s), band (Hz), channel width (Hz),
+    time resolution (s)."""
+
+    scan_s: float
+    band_hz: tuple[float, float]
+    channel_hz: float
+    time_resolution_s: float
+
+
+DEMO_INSTRUMENT = Instrument(SCAN_S, BAND_HZ, CHANNEL_HZ, TIME_RESOLUTION_S)
+
+
+def scan_body(
+    site: str,
+    start: datetime,
+    on_source: bool,
+    cadence: str,
+    target: str | None,
+    pointing: tuple[float, float] | None,
+    run: str,
+    instrument: Instrument = DEMO_INSTRUMENT,
+) -> dict[str, Any]:
+    """An observation body as a pipeline registers it (its hits follow in batches)."""
+    body: dict[str, Any] = {
+        "site": site,
+        "start": start.isoformat(),
+        "duration_s": instrument.scan_s,
+        "frequency_min_hz": instrument.band_hz[0],
+        "frequency_max_hz": instrument.band_hz[1],
+        "channel_width_hz": instrument.channel_hz,
+        "time_resolution_s": instrument.time_resolution_s,
+        "on_source": on_source,
+        "beam": "b0",
+        "cadence": cadence,
+        "pipeline_run": run,
+    }
+    if target:
+        body["target"] = target
+    if pointing:
+        body["pointing_ra_deg"], body["pointing_dec_deg"] = pointing
+    return body
+
+
 def _scan(
     site: str,
     start: datetime,
@@ -169,25 +214,8 @@ def _scan(
     detections: list[dict[str, Any]],
     run: str,
 ) -> dict[str, Any]:
-    body: dict[str, Any] = {
-        "site": site,
-        "start": start.isoformat(),
-        "duration_s": SCAN_S,
-        "frequency_min_hz": BAND_HZ[0],
-        "frequency_max_hz": BAND_HZ[1],
-        "channel_width_hz": CHANNEL_HZ,
-        "time_resolution_s": TIME_RESOLUTION_S,
-        "on_source": on_source,
-        "beam": "b0",
-        "cadence": cadence,
-        "pipeline_run": run,
-        "detections": detections,
-    }
-    if target:
-        body["target"] = target
-    if pointing:
-        body["pointing_ra_deg"], body["pointing_dec_deg"] = pointing
-    return body
+    body = scan_body(site, start, on_source, cadence, target, pointing, run)
+    return {**body, "detections": detections}
 
 
 def noise_hits(rng: np.random.Generator, count: int) -> list[dict[str, Any]]:

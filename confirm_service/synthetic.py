@@ -16,6 +16,9 @@ from typing import Any
 
 import numpy as np
 
+from confirm_service.demo import Instrument
+from confirm_service.demo import scan_body as demo_scan_body
+
 SCAN_S = 240.0
 GAP_S = 20.0
 CHANNEL_HZ = 3.81
@@ -42,6 +45,9 @@ class Cadence:
         return sum(len(h) for h in self.hits)
 
 
+INSTRUMENT = Instrument(SCAN_S, BAND_HZ, CHANNEL_HZ, TIME_RESOLUTION_S)
+
+
 def scan_body(
     site: str,
     target: str | None,
@@ -51,23 +57,16 @@ def scan_body(
     pointing: tuple[float, float] | None = None,
 ) -> dict[str, Any]:
     """An observation body as a pipeline registers it (no hits: they follow in batches)."""
-    body: dict[str, Any] = {
-        "site": site,
-        "start": start.isoformat(),
-        "duration_s": SCAN_S,
-        "frequency_min_hz": BAND_HZ[0],
-        "frequency_max_hz": BAND_HZ[1],
-        "channel_width_hz": CHANNEL_HZ,
-        "time_resolution_s": TIME_RESOLUTION_S,
-        "on_source": on_source,
-        "cadence": cadence,
-        "pipeline_run": f"synthetic-{cadence}",
-    }
-    if on_source and target:
-        body["target"] = target
-    if pointing is not None:
-        body["pointing_ra_deg"], body["pointing_dec_deg"] = pointing
-    return body
+    return demo_scan_body(
+        site,
+        start,
+        on_source,
+        cadence,
+        target if on_source else None,
+        pointing,
+        f"synthetic-{cadence}",
+        INSTRUMENT,
+    )
 
 
 def _clear_of(frequencies: np.ndarray, centres: list[float]) -> np.ndarray:
