@@ -57,8 +57,8 @@ SCAN = {
     "duration_s": 300.0,
     "frequency_min_hz": 1.40e9,
     "frequency_max_hz": 1.45e9,
-    "channel_width_hz": 2.79,
-    "time_resolution_s": 18.25,
+    "channel_width_hz": 3.81,
+    "time_resolution_s": 12.5,
     "on_source": True,
 }
 
@@ -139,8 +139,8 @@ def bench_core(url: str, batches: list[list[dict]], same_scan: bool) -> float:
                 duration_s=300.0,
                 frequency_min_hz=1.40e9,
                 frequency_max_hz=1.45e9,
-                channel_width_hz=2.79,
-                time_resolution_s=18.25,
+                channel_width_hz=3.81,
+                time_resolution_s=12.5,
                 on_source=True,
             )
             for i in range(1 if same_scan else len(batches))

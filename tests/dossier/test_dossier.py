@@ -15,6 +15,7 @@ from cryptography.hazmat.primitives.serialization import Encoding, PublicFormat
 from confirm_service.audit.checkpoints import service_public_key
 from confirm_service.audit.merkle import inclusion_proof, leaf_hash
 from confirm_service.audit.tree_cache import ProofBuilder
+from confirm_service.demo import CHANNEL_HZ
 from confirm_service.dossier.build import build_dossier
 from confirm_service.dossier.render import write_dossier
 from confirm_service.dossier.verify import verify_dossier
@@ -72,7 +73,7 @@ def test_dossier_holds_the_record_and_verifies(written, client, auth):
     for comparison in document["predictions"]:
         # every linked detection lies within 3 sigma + one channel of its prediction
         miss = abs(comparison["observed_frequency_hz"] - comparison["predicted_frequency_hz"])
-        assert miss <= 3 * comparison["frequency_sigma_hz"] + 2.79
+        assert miss <= 3 * comparison["frequency_sigma_hz"] + CHANNEL_HZ
     actions = {e["entry"]["action"] for e in document["audit"]["entries"]}
     assert {
         "candidate.created",

@@ -180,8 +180,8 @@ def test_two_instances_request_and_report_to_each_other(tmp_path):
             "duration_s": 300.0,
             "frequency_min_hz": 1.40e9,
             "frequency_max_hz": 1.45e9,
-            "channel_width_hz": 2.79,
-            "time_resolution_s": 18.25,
+            "channel_width_hz": 3.81,
+            "time_resolution_s": 12.5,
             "on_source": True,
             "detections": [
                 {**hit, "time_offset_s": 120.0},

@@ -199,8 +199,8 @@ def test_reports_on_a_request_move_both_checks(app, client, auth, db):
         "duration_s": 300.0,
         "frequency_min_hz": 1.40e9,
         "frequency_max_hz": 1.45e9,
-        "channel_width_hz": 2.79,
-        "time_resolution_s": 18.25,
+        "channel_width_hz": 3.81,
+        "time_resolution_s": 12.5,
         "on_source": True,
         "detections": [{**hit, "time_offset_s": 100.0}],
     }
