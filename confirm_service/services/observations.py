@@ -260,13 +260,7 @@ def screening_counts(session: Session, observation_id: int) -> dict[str, Any]:
     from confirm_service.models import ScreeningRun
 
     observation = get_observation(session, observation_id)
-    rows = session.execute(
-        select(Detection.screen_reason, func.count())
-        .where(Detection.observation_id == observation_id)
-        .group_by(Detection.screen_reason)
-    ).all()
-    reasons = {reason: int(count) for reason, count in rows if reason is not None}
-    pending = sum(int(count) for reason, count in rows if reason is None)
+    pending, reasons = reason_counts(session, [observation_id])[observation_id]
     runs = session.execute(
         select(ScreeningRun.id)
         .join(Detection, Detection.screening_run_id == ScreeningRun.id)
@@ -279,7 +273,7 @@ def screening_counts(session: Session, observation_id: int) -> dict[str, Any]:
         "complete": observation.completed_at is not None,
         "detection_count": observation.detection_count,
         "pending": pending,
-        "reasons": dict(sorted(reasons.items())),
+        "reasons": reasons,
         "runs": list(runs),
     }
 
@@ -348,18 +342,29 @@ def recent_screening_counts(session: Session, limit: int = 100) -> list[dict[str
         }
         for o in scans
     }
-    if not rows:
-        return []
-    counted = session.execute(
-        select(Detection.observation_id, Detection.screen_reason, func.count())
-        .where(Detection.observation_id.in_(list(rows)))
-        .group_by(Detection.observation_id, Detection.screen_reason)
-    ).all()
-    for observation_id, reason, count in counted:
-        if reason is None:
-            rows[observation_id]["pending"] = int(count)
-        else:
-            rows[observation_id]["reasons"][reason] = int(count)
-    for row in rows.values():
-        row["reasons"] = dict(sorted(row["reasons"].items()))
+    for observation_id, (pending, reasons) in reason_counts(session, list(rows)).items():
+        rows[observation_id]["pending"] = pending
+        rows[observation_id]["reasons"] = reasons
     return list(rows.values())
+
+
+def reason_counts(
+    session: Session, observation_ids: Sequence[int]
+) -> dict[int, tuple[int, dict[str, int]]]:
+    """Per scan: hits not judged yet, and hits per screening reason (sorted), in one query."""
+    counts: dict[int, tuple[int, dict[str, int]]] = {i: (0, {}) for i in observation_ids}
+    if not observation_ids:
+        return counts
+    rows = session.execute(
+        select(Detection.observation_id, Detection.screen_reason, func.count())
+        .where(Detection.observation_id.in_(observation_ids))
+        .group_by(Detection.observation_id, Detection.screen_reason)
+        .order_by(Detection.observation_id, Detection.screen_reason)
+    ).all()
+    for observation_id, reason, count in rows:
+        pending, reasons = counts[observation_id]
+        if reason is None:
+            counts[observation_id] = (int(count), reasons)
+        else:
+            reasons[reason] = int(count)
+    return counts
