@@ -19,26 +19,32 @@ from confirm_service.cli import main
 from confirm_service.cli.context import settings as cli_settings
 from confirm_service.demo import SITES, SKY_FIXED_HZ, TARGETS, scenario_scans
 from confirm_service.models import SchedulerRun
-from confirm_service.scheduler.jobs import checkpoint_if_grown, run_due
+from confirm_service.scheduler.jobs import run_due, scheduled_checkpoint
 from confirm_service.scheduler.leader import LeaderLock
+from confirm_service.timeutil import utc_now
 from tests.factories import setup_log
 
 
-def test_checkpoint_only_when_the_log_grew(app, client, auth, db):
+def test_scheduled_checkpoint_only_when_the_log_grew_over_the_interval(app, client, auth, db):
     settings = app.extensions["confirm.settings"]
+    interval = timedelta(seconds=settings.checkpoint_interval_s)
     setup_log(client, auth)
-    first = checkpoint_if_grown(db, settings)
+
+    def signed_size(now: datetime) -> int | None:
+        scheduled_checkpoint(db, settings, now)
+        with db.read() as session:
+            latest = latest_checkpoint(session)
+        return None if latest is None else latest.tree_size
+
+    first = signed_size(utc_now())
     assert first is not None and first > 0
-    assert checkpoint_if_grown(db, settings) is None
     client.post(
         "/api/v1/targets",
         json={"name": "Harrow-3", "ra_deg": 312.0, "dec_deg": -48.3},
         headers=auth("coordinator"),
     )
-    second = checkpoint_if_grown(db, settings)
-    assert second == first + 1
-    with db.read() as session:
-        assert latest_checkpoint(session).tree_size == second
+    assert signed_size(utc_now()) == first  # grown, but the interval has not passed
+    assert signed_size(utc_now() + interval) == first + 1
 
 
 def test_only_one_scheduler_holds_the_lock(db, tmp_path):

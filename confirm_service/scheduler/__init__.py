@@ -52,8 +52,6 @@ def build_scheduler(database: Database, settings: Settings) -> BackgroundSchedul
     scheduler = BackgroundScheduler(timezone="UTC", jobstores={"default": store})
     for job in JOBS:
         interval_s = job.every_ticks * settings.scheduler_tick_s
-        if job.name == "checkpoint":
-            interval_s = settings.checkpoint_interval_s
         scheduler.add_job(
             "confirm_service.scheduler:scheduled_run",
             "interval",

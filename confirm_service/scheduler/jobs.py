@@ -18,12 +18,10 @@ from datetime import datetime
 from sqlalchemy import select
 
 from confirm_service.actor import Actor
-from confirm_service.audit.checkpoints import latest_checkpoint, take_checkpoint
-from confirm_service.audit.log import tree_size
 from confirm_service.config import Settings
 from confirm_service.db import Database
 from confirm_service.models import Candidate, SchedulerRun
-from confirm_service.services import evaluation, scans
+from confirm_service.services import checkpointing, evaluation, scans
 from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)
@@ -66,20 +64,11 @@ def close_stale_scans(database: Database, settings: Settings, now: datetime) -> 
 
 
 def scheduled_checkpoint(database: Database, settings: Settings, now: datetime) -> str:
-    """Sign a checkpoint when the log grew since the last one."""
-    size = checkpoint_if_grown(database, settings)
-    return f"checkpoint at tree size {size}" if size else "log unchanged, no checkpoint"
-
-
-def checkpoint_if_grown(database: Database, settings: Settings) -> int | None:
-    """Sign a checkpoint when the log grew since the last one; returns its tree size."""
+    """Sign a checkpoint when the log grew and the latest one is the configured interval old."""
     with database.write() as session:
-        size = tree_size(session)
-        latest = latest_checkpoint(session)
-        if latest is not None and latest.tree_size >= size:
-            return None
-        checkpoint = take_checkpoint(session, settings, "scheduled")
-        return checkpoint.tree_size
+        checkpoint = checkpointing.checkpoint_if_due(session, settings, now, "scheduled")
+        size = checkpoint.tree_size if checkpoint is not None else None
+    return f"checkpoint at tree size {size}" if size else "no checkpoint due"
 
 
 @dataclass(frozen=True)
@@ -156,7 +145,7 @@ JOBS: tuple[DueJob, ...] = (
     DueJob("deliveries", 1, deliver_messages),
     DueJob("expiry", 5, expire_requests),
     DueJob("stale-scans", 5, close_stale_scans),
-    DueJob("checkpoint", 60, scheduled_checkpoint),
+    DueJob("checkpoint", 1, scheduled_checkpoint),
 )
 """In the order ``run_due`` runs them: evaluation first, so that the intents it records are
 handled in the same pass."""

@@ -12,12 +12,11 @@ from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import Conflict, Forbidden, Invalid, NotFound
 from confirm_service.models import Candidate, Comment, SignOff
-from confirm_service.services.evaluation import (
-    locked_candidate,
-    reevaluate,
-    take_decision_checkpoint,
-)
+from confirm_service.services import runtime
+from confirm_service.services.checkpointing import checkpoint_if_due
+from confirm_service.services.evaluation import locked_candidate, reevaluate
 from confirm_service.services.history import add_history
+from confirm_service.timeutil import utc_now
 
 
 def _require_open(candidate: Candidate) -> None:
@@ -67,7 +66,8 @@ def decide(
     candidate.state = decision
     candidate.reason = rationale
     candidate.reason_class = "person"
-    take_decision_checkpoint(session, candidate, f"candidate {candidate.id} {decision}")
+    reason = f"candidate {candidate.id} {decision}"
+    checkpoint_if_due(session, runtime.settings(), utc_now(), reason, moved=[candidate])
     return candidate
 
 

@@ -11,7 +11,7 @@ from collections.abc import Sequence
 from datetime import UTC, datetime, timedelta
 from typing import Any
 
-from sqlalchemy import and_, event, func, or_, select
+from sqlalchemy import and_, func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import SYSTEM, Actor
@@ -29,6 +29,7 @@ from confirm_service.models import (
 from confirm_service.protocol import Evaluation, default_physics_context, evaluate
 from confirm_service.services import facts as factbook
 from confirm_service.services import runtime
+from confirm_service.services.checkpointing import checkpoint_if_due
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import protocol_of
 from confirm_service.timeutil import utc_now
@@ -251,40 +252,6 @@ def _apply_state(candidate: Candidate, evaluation: Evaluation) -> None:
         candidate.reason = evaluation.transitions[-1].reason
 
 
-_PENDING_CHECKPOINT = "confirm.checkpoint_for"
-
-
-def take_decision_checkpoint(session: Session, candidate: Candidate, reason: str) -> None:
-    """Ask for a signed checkpoint when this transaction commits, pinned to the candidate.
-
-    However many candidates change in one transaction, one checkpoint is signed, just before
-    commit, covering every entry the transaction wrote (computing a root reads the whole log).
-    """
-    session.info.setdefault(_PENDING_CHECKPOINT, {})[candidate.id] = (candidate, reason)
-
-
-@event.listens_for(Session, "after_rollback")
-def _forget_pending_checkpoint(session: Session) -> None:
-    session.info.pop(_PENDING_CHECKPOINT, None)
-
-
-@event.listens_for(Session, "before_commit")
-def _sign_pending_checkpoint(session: Session) -> None:
-    pending = session.info.pop(_PENDING_CHECKPOINT, None)
-    if not pending:
-        return
-    from confirm_service.audit.checkpoints import take_checkpoint
-
-    session.flush()
-    reasons = [reason for _, reason in pending.values()]
-    reason = reasons[0] if len(reasons) == 1 else f"{len(reasons)} candidate decisions"
-    checkpoint = take_checkpoint(session, runtime.settings(), reason[:64])
-    for candidate, _ in pending.values():
-        if candidate.state != "open":
-            candidate.decision_checkpoint_size = checkpoint.tree_size
-    session.flush()
-
-
 def reevaluate(
     session: Session, actor: Actor, candidate: Candidate, now: datetime | None = None
 ) -> Evaluation:
@@ -301,7 +268,8 @@ def reevaluate(
     transitioned = _record_transitions(session, actor, candidate, evaluation)
     _apply_state(candidate, evaluation)
     if transitioned:
-        take_decision_checkpoint(session, candidate, f"candidate {candidate.id} transition")
+        reason = f"candidate {candidate.id} transition"
+        checkpoint_if_due(session, runtime.settings(), now, reason, moved=[candidate])
     return evaluation
 
 
