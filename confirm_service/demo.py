@@ -13,7 +13,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
-from typing import Any
+from typing import Any, NotRequired, TypedDict
 
 import numpy as np
 
@@ -21,7 +21,33 @@ from confirm_service import physics
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.timeutil import utc_now
 
-SITES = [
+
+class DemoSite(TypedDict):
+    """A site as the API registers it (``POST /api/v1/sites``); degrees and metres."""
+
+    code: str
+    name: str
+    latitude_deg: float
+    longitude_deg: float
+    elevation_m: float
+    min_elevation_deg: float
+    sun_avoidance_deg: float
+    email: NotRequired[str]
+    webhook_url: NotRequired[str]
+
+
+class DemoTarget(TypedDict):
+    """A target as the API registers it (``POST /api/v1/targets``); degrees, mas and mas/yr."""
+
+    name: str
+    ra_deg: float
+    dec_deg: float
+    pm_ra_mas_yr: NotRequired[float]
+    pm_dec_mas_yr: NotRequired[float]
+    parallax_mas: NotRequired[float]
+
+
+SITES: list[DemoSite] = [
     {
         "code": "PRA",
         "name": "Pell Ridge Array",
@@ -53,7 +79,7 @@ SITES = [
         "email": "duty@orvale.example",
     },
 ]
-TARGETS = [
+TARGETS: list[DemoTarget] = [
     {
         "name": "Kestrel-7",
         "ra_deg": 201.365,
@@ -93,11 +119,11 @@ class DemoResult:
     dossier: Path | None = None
 
 
-def _location(site: dict[str, Any]) -> Any:
+def _location(site: DemoSite) -> Any:
     return physics.site_location(site["latitude_deg"], site["longitude_deg"], site["elevation_m"])
 
 
-def _coord(target: dict[str, Any]) -> Any:
+def _coord(target: DemoTarget) -> Any:
     return physics.target_coord(
         target["ra_deg"],
         target["dec_deg"],
@@ -108,9 +134,7 @@ def _coord(target: dict[str, Any]) -> Any:
     )
 
 
-def first_window(
-    site: dict[str, Any], target: dict[str, Any], after: datetime, minimum_s: float
-) -> datetime:
+def first_window(site: DemoSite, target: DemoTarget, after: datetime, minimum_s: float) -> datetime:
     """Start of the first window after ``after`` long enough for ``minimum_s`` of scans."""
     windows = physics.visibility_windows(
         _location(site),
@@ -131,8 +155,8 @@ class SkyFixedSignal:
 
     def __init__(
         self,
-        site: dict[str, Any],
-        target: dict[str, Any],
+        site: DemoSite,
+        target: DemoTarget,
         at: datetime,
         frequency_hz: float = SKY_FIXED_HZ,
         residual_drift_hz_s: float = SKY_FIXED_RESIDUAL_HZ_S,
@@ -148,7 +172,7 @@ class SkyFixedSignal:
             location, at.timestamp(), frequency_hz, earth + residual_drift_hz_s
         )
 
-    def seen_at(self, site: dict[str, Any], at: datetime, snr: float) -> dict[str, float]:
+    def seen_at(self, site: DemoSite, at: datetime, snr: float) -> dict[str, float]:
         prediction = physics.predict_signal(
             self.reference, self.target, _location(site), [at.timestamp()]
         )

@@ -16,7 +16,7 @@ from typing import Any
 
 import numpy as np
 
-from confirm_service.demo import Instrument
+from confirm_service.demo import DemoSite, DemoTarget, Instrument
 from confirm_service.demo import scan_body as demo_scan_body
 
 SCAN_S = 240.0
@@ -88,8 +88,8 @@ def _random_frequencies(rng: np.random.Generator, count: int, avoid: list[float]
 
 
 def make_cadence(
-    site: dict[str, Any],
-    target: dict[str, Any],
+    site: DemoSite,
+    target: DemoTarget,
     start: datetime,
     hits_per_scan: int,
     seed: int = 1,

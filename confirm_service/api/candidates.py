@@ -204,5 +204,5 @@ def report(candidate_id: int) -> Response:
     data = parse_body(ReportIn)
     with database().write() as session:
         row = reports.add_report(session, current_actor(), candidate_id, data)
-        body = views.report_out(row, data.site)
+        body = views.stored_report_out(session, row)
     return json_response(body, 201)

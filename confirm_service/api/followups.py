@@ -31,7 +31,7 @@ from confirm_service.schemas.followups import (
 )
 from confirm_service.services import access, federation, messages
 from confirm_service.services import followups as service
-from confirm_service.services.candidate_views import report_out
+from confirm_service.services.candidate_views import stored_report_out
 from confirm_service.timeutil import utc_now
 
 bp = Blueprint("followups", __name__, url_prefix="/api/v1")
@@ -189,7 +189,7 @@ def report(request_id: int) -> Response:
             message = federation.relay_report(session, current_actor(), request_id, data)
             return json_response(message_out(message).model_dump(mode="json"), 202)
         stored = service.record_report(session, current_actor(), data, request_id=request_id)
-        body = report_out(stored, _site_codes(session)[stored.site_id])
+        body = stored_report_out(session, stored)
     return json_response(body, 201)
 
 

@@ -216,6 +216,13 @@ def _rows_of(session: Session, model: Any, candidate_id: int) -> list[Any]:
     )
 
 
+def stored_report_out(session: Session, report: FollowUpReport) -> ReportOut:
+    """A report just stored, with its site's code."""
+    site = session.get(Site, report.site_id)
+    assert site is not None  # a foreign key
+    return report_out(report, site.code)
+
+
 def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
     return ReportOut(
         id=report.id,

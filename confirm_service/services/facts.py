@@ -116,12 +116,12 @@ _SCAN_COLUMNS = (
 )
 
 
-def _scan_query():  # type: ignore[no-untyped-def]
-    return (
-        select(*_SCAN_COLUMNS)
-        .join(Site, Site.id == Observation.site_id)
-        .outerjoin(Target, Target.id == Observation.target_id)
-    )
+_SCAN_QUERY = (
+    select(*_SCAN_COLUMNS)
+    .join(Site, Site.id == Observation.site_id)
+    .outerjoin(Target, Target.id == Observation.target_id)
+)
+"""Every scan column the facts need, with its site and target (statements are immutable)."""
 
 
 def _scan_fact(row: Any) -> ObservationFact:
@@ -156,7 +156,7 @@ def related_scans(
         conditions.append(Observation.target_id == target_id)
     if reference.cadence:
         conditions.append(Observation.cadence == reference.cadence)
-    direct = [_scan_fact(row) for row in session.execute(_scan_query().where(or_(*conditions)))]
+    direct = [_scan_fact(row) for row in session.execute(_SCAN_QUERY.where(or_(*conditions)))]
     spans = [(o.start_unix_s, o.end_unix_s) for o in direct if o.on_source]
     if not spans:
         return direct
@@ -165,9 +165,7 @@ def related_scans(
     latest = datetime.fromtimestamp(max(e for _, e in spans), UTC) + OVERLAP_MARGIN
     known = {o.id for o in direct}
     overlapping = []
-    window = _scan_query().where(
-        Observation.start >= earliest - MAX_SCAN, Observation.start < latest
-    )
+    window = _SCAN_QUERY.where(Observation.start >= earliest - MAX_SCAN, Observation.start < latest)
     if target_id is not None:
         window = window.where(
             or_(Observation.target_id.is_(None), Observation.target_id != target_id)
@@ -220,17 +218,17 @@ def detections_in_windows(
     """
     found: dict[int, list[DetectionFact]] = {observation_id: [] for observation_id in windows}
     for low, high, ids in _clusters(windows):
-        rows = session.execute(
+        matches = session.execute(
             select(*_DETECTION_COLUMNS).where(
                 Detection.observation_id.in_(ids), Detection.frequency_hz.between(low, high)
             )
         )
-        for row in rows:
+        for row in matches:
             w_low, w_high = windows[row.observation_id]
             if w_low <= row.frequency_hz <= w_high:
                 found[row.observation_id].append(DetectionFact(*row))
-    for rows in found.values():
-        rows.sort(key=lambda d: d.id)
+    for facts in found.values():
+        facts.sort(key=lambda d: d.id)
     return found
 
 

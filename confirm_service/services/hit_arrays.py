@@ -73,7 +73,7 @@ _cache: OrderedDict[tuple[str, int], tuple[ScanKey, HitTable]] = OrderedDict()
 
 
 def _database(session: Session) -> str:
-    return session.get_bind().url.render_as_string(hide_password=True)
+    return session.get_bind().engine.url.render_as_string(hide_password=True)
 
 
 def read_hits(session: Session, observation_ids: Sequence[int]) -> np.ndarray:

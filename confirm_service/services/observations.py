@@ -328,7 +328,7 @@ def recent_screening_counts(session: Session, limit: int = 100) -> list[dict[str
     scans = session.execute(
         select(Observation).order_by(Observation.start.desc(), Observation.id.desc()).limit(limit)
     ).scalars()
-    rows = {
+    rows: dict[int, dict[str, Any]] = {
         o.id: {
             "observation_id": o.id,
             "site": o.site.code,

@@ -2,14 +2,14 @@
 
 from __future__ import annotations
 
-from typing import Any
-
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
+from confirm_service.models import FollowUpReport
+from confirm_service.schemas.followups import ReportIn
 
 
-def add_report(session: Session, actor: Actor, candidate_id: int, data: Any) -> Any:
+def add_report(session: Session, actor: Actor, candidate_id: int, data: ReportIn) -> FollowUpReport:
     """A partner site's report without a follow-up request; the same path as reports on a
     request (``followups.record_report``): stored, audited, the candidate re-evaluated.
 

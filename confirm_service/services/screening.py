@@ -274,7 +274,8 @@ def judge_cadence(
     signals: list[list[tuple[int, int, float]]] = []
     used_occupancy: list[int] = []
     targets = sorted({r.target_id for r in rows if r.on_source and r.target_id is not None})
-    for target_id in targets or [None]:
+    screened: Sequence[int | None] = targets or [None]  # a targetless cadence still screens
+    for target_id in screened:
         target = session.get(Target, target_id) if target_id is not None else None
         scans = scan_hits(session, observation, rows, target, target_id, not_pending is not None)
         scans = [
