@@ -48,7 +48,7 @@ from confirm_service.protocol.facts import (
     ObservationFact,
     TargetFact,
 )
-from confirm_service.protocol.loader import model_of
+from confirm_service.protocol.loader import LoadedProtocol, ProtocolLike, model_of
 from confirm_service.protocol.matching import CandidateView, build_candidate_views, is_target_scan
 from confirm_service.protocol.reference import PhysicsContext, ReferenceSignal
 from confirm_service.protocol.results import (
@@ -65,21 +65,17 @@ from confirm_service.protocol.results import (
     SignoffStatus,
     Transition,
 )
-from confirm_service.protocol.schema import ProtocolModel, StageModel
+from confirm_service.protocol.schema import CheckSpec, ProtocolModel, StageModel
 from confirm_service.protocol.signoffs import signoff_statuses, signoffs_met
 
 EVALUATION_CHUNK = 64
 
 
-def _model(protocol: Any) -> ProtocolModel:
-    return model_of(protocol)
-
-
-def _bands(protocol: Any, bands: BandSet | Sequence[InterferenceBand] | None) -> BandSet:
+def _bands(protocol: ProtocolLike, bands: BandSet | Sequence[InterferenceBand] | None) -> BandSet:
     if bands is None:
-        if isinstance(protocol, ProtocolModel):
-            return BandSet(())
-        return getattr(protocol, "band_set", None) or BandSet(())
+        if isinstance(protocol, LoadedProtocol):
+            return protocol.band_set
+        return BandSet(())
     return as_band_set(bands)
 
 
@@ -106,14 +102,14 @@ class _Run:
 
 
 def _run_check(
-    stage: StageModel, spec: Any, facts: CandidateFacts, view: CandidateView
+    stage: StageModel, spec: CheckSpec, facts: CandidateFacts, view: CandidateView
 ) -> CheckResult:
     result = get_check(spec.kind).evaluate(facts, spec, view)
     return result.with_origin(stage.name, spec.on_fail, spec.reason_class)
 
 
 def evaluate(
-    protocol: Any,
+    protocol: ProtocolLike,
     facts: CandidateFacts,
     bands: BandSet | Sequence[InterferenceBand] | None = None,
     *,
@@ -128,7 +124,7 @@ def evaluate(
 
 
 def evaluate_many(
-    protocol: Any,
+    protocol: ProtocolLike,
     facts_list: Sequence[CandidateFacts],
     bands: BandSet | Sequence[InterferenceBand] | None = None,
     *,
@@ -139,7 +135,7 @@ def evaluate_many(
 
     Gives exactly the same evaluations as calling ``evaluate`` on each candidate.
     """
-    model = _model(protocol)
+    model = model_of(protocol)
     band_set = _bands(protocol, bands)
     evaluations: list[Evaluation] = []
     for begin in range(0, len(facts_list), max(chunk_size, 1)):
@@ -358,7 +354,7 @@ def _action_key(candidate_id: int, stage: str, entered_unix_s: float, suffix: st
 
 
 def stage_entry_actions(
-    protocol: Any,
+    protocol: ProtocolLike,
     stage_name: str,
     candidate_id: int,
     entered_unix_s: float,
@@ -370,7 +366,7 @@ def stage_entry_actions(
     stage entered later. With ``reference`` the parameters carry the candidate's barycentric
     frequency (Hz), residual drift (Hz/s) and reference time (unix s).
     """
-    model = _model(protocol)
+    model = model_of(protocol)
     stage = model.stages[model.stage_index(stage_name)]
     signal = {}
     if reference is not None:
@@ -417,13 +413,13 @@ def _action_params(spec: Any) -> dict[str, Any]:
     return {k: (list(v) if isinstance(v, list) else v) for k, v in params.items()}
 
 
-def initial_stage(protocol: Any) -> str:
+def initial_stage(protocol: ProtocolLike) -> str:
     """Name of the stage a new candidate enters."""
-    return _model(protocol).first_stage().name
+    return model_of(protocol).first_stage().name
 
 
 def intake_decision(
-    protocol: Any,
+    protocol: ProtocolLike,
     detection: DetectionFact,
     observation: ObservationFact,
     target: TargetFact | None,
@@ -434,7 +430,7 @@ def intake_decision(
     Hits in listed bands are refused only when the protocol's band action is ``"reject"``;
     with ``"flag"`` they are promoted and the known_interference check holds them for review.
     """
-    model = _model(protocol)
+    model = model_of(protocol)
     rule = model.intake
     if target is None:
         return IntakeDecision(

@@ -31,9 +31,8 @@ absent" (an open scan may still receive the hit).
 from __future__ import annotations
 
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from functools import cached_property
-from typing import Any
 
 import numpy as np
 
@@ -46,7 +45,7 @@ from confirm_service.protocol.facts import (
     SiteFact,
     TargetFact,
 )
-from confirm_service.protocol.loader import model_of
+from confirm_service.protocol.loader import ProtocolLike, model_of
 from confirm_service.protocol.reference import (
     PhysicsContext,
     ReferenceSignal,
@@ -223,8 +222,8 @@ def window_sample_times(start_unix_s: float, duration_s: float) -> np.ndarray:
 
 def _sample_counts(duration_s: np.ndarray) -> np.ndarray:
     """Samples per scan: one per WINDOW_SAMPLE_SPACING_S plus the ends, within limits."""
-    counts = np.ceil(np.maximum(duration_s, 0.0) / WINDOW_SAMPLE_SPACING_S).astype(np.int64) + 1
-    return np.clip(counts, MIN_WINDOW_SAMPLES, MAX_WINDOW_SAMPLES)
+    counts: np.ndarray = np.ceil(np.maximum(duration_s, 0.0) / WINDOW_SAMPLE_SPACING_S) + 1
+    return counts.astype(np.int64).clip(MIN_WINDOW_SAMPLES, MAX_WINDOW_SAMPLES)
 
 
 def tolerance_hz(
@@ -238,10 +237,6 @@ def tolerance_hz(
         matching.frequency_tolerance_floor_hz, matching.sigma_multiplier * np.asarray(sigma_hz)
     )
     return widened + systematic_hz + matching.scan_margin_channels * np.asarray(channel_width_hz)
-
-
-def _protocol_model(protocol: Any) -> ProtocolModel:
-    return model_of(protocol)
 
 
 @dataclass(frozen=True, slots=True)
@@ -568,19 +563,22 @@ def _report_view(
     covers = report.frequency_min_hz <= batch.low_hz[k] and (
         batch.high_hz[k] <= report.frequency_max_hz
     )
-    common = {
-        "report": report,
-        "window_low_hz": batch.low_hz[k],
-        "window_high_hz": batch.high_hz[k],
-        "covers": covers,
-        "drift_resolution_hz_s": reference.drift_resolution_hz_s,
-    }
+    unseen = ReportView(
+        report=report,
+        predicted_frequency_hz=0.5 * (batch.low_hz[k] + batch.high_hz[k]),  # the window's centre
+        window_low_hz=batch.low_hz[k],
+        window_high_hz=batch.high_hz[k],
+        covers=covers,
+        present=False,
+        earth_drift_hz_s=0.0,
+        drift_resolution_hz_s=reference.drift_resolution_hz_s,
+    )
     if begin == end:
-        middle = _report_middle(batch, k)
-        return ReportView(present=False, **middle, **common)
+        return unseen
     on_frequency = batch.on_frequency[begin]
     drift_agrees = report.drift_hz_s is None or batch.on_drift[begin]
-    return ReportView(
+    return replace(
+        unseen,
         predicted_frequency_hz=batch.detection_frequency_hz[begin],
         present=on_frequency and drift_agrees,
         earth_drift_hz_s=batch.detection_earth_drift_hz_s[begin],
@@ -588,20 +586,11 @@ def _report_view(
         frequency_tolerance_hz=batch.detection_tolerance_hz[begin],
         drift_tolerance_hz_s=batch.detection_drift_tolerance_hz_s[begin],
         drift_mismatch=on_frequency and not drift_agrees,
-        **common,
     )
 
 
-def _report_middle(batch: _Batch, k: int) -> dict[str, float]:
-    """Prediction values of a report without a sighting: the window's centre."""
-    return {
-        "predicted_frequency_hz": 0.5 * (batch.low_hz[k] + batch.high_hz[k]),
-        "earth_drift_hz_s": 0.0,
-    }
-
-
 def build_candidate_views(
-    protocol: Any,
+    protocol: ProtocolLike,
     facts_list: Sequence[CandidateFacts],
     bands: BandSet | Sequence[InterferenceBand] | None = None,
     physics_context: PhysicsContext | None = None,
@@ -609,7 +598,7 @@ def build_candidate_views(
     """Views of many candidates, their physics computed together (one TrackCache call)."""
     if not facts_list:
         return []
-    model = _protocol_model(protocol)
+    model = model_of(protocol)
     context = physics_context or default_physics_context()
     band_set = as_band_set(bands)
     batch = _predict_items(
@@ -625,7 +614,7 @@ def build_candidate_views(
 
 
 def build_candidate_view(
-    protocol: Any,
+    protocol: ProtocolLike,
     facts: CandidateFacts,
     bands: BandSet | Sequence[InterferenceBand] | None = None,
     physics_context: PhysicsContext | None = None,
@@ -635,7 +624,7 @@ def build_candidate_view(
 
 
 def match_detections(
-    protocol: Any,
+    protocol: ProtocolLike,
     facts: CandidateFacts,
     physics_context: PhysicsContext | None = None,
 ) -> dict[int, tuple[int, ...]]:
@@ -644,7 +633,7 @@ def match_detections(
 
 
 def search_windows_hz(
-    protocol: Any,
+    protocol: ProtocolLike,
     reference_detection: DetectionFact,
     reference_observation: ObservationFact,
     target: TargetFact,
@@ -668,7 +657,7 @@ def search_windows_hz(
     ]
     batch = _predict_items(
         context,
-        _protocol_model(protocol),
+        model_of(protocol),
         [(reference_detection, reference_observation, target)],
         [items],
     )
@@ -676,7 +665,7 @@ def search_windows_hz(
 
 
 def search_window_hz(
-    protocol: Any,
+    protocol: ProtocolLike,
     reference_detection: DetectionFact,
     reference_observation: ObservationFact,
     target: TargetFact,

@@ -24,7 +24,7 @@ Cross-key rules (reason_class with reject, deadline pairs, unique names) are che
 
 from __future__ import annotations
 
-from typing import Annotated, Any, Literal, Union
+from typing import TYPE_CHECKING, Annotated, Any, Literal, TypeAlias, Union, get_args
 
 from pydantic import Field, create_model, field_validator, model_validator
 
@@ -41,7 +41,8 @@ from confirm_service.protocol.checks._base import (
     exactly_one_drift_limit,
 )
 
-ON_FAIL_VALUES = ("reject", "hold")
+OnFail = Literal["reject", "hold"]
+ON_FAIL_VALUES = get_args(OnFail)
 ON_DEADLINE_VALUES = ("escalate", "expire")
 
 
@@ -49,25 +50,38 @@ def _camel(kind: str) -> str:
     return "".join(part.capitalize() for part in kind.split("_"))
 
 
-def _check_spec_model(entry: CheckKind) -> type[CheckParams]:
+class CheckSpecFields(CheckParams):
+    """What every protocol check entry has besides its kind's parameters."""
+
+    kind: str
+    on_fail: OnFail
+    reason_class: Identifier | None = None
+
+
+def _check_spec_model(entry: CheckKind) -> type[CheckSpecFields]:
     """The protocol entry of one kind: its parameters plus kind, on_fail, reason_class."""
-    return create_model(
+    model = create_model(
         f"{_camel(entry.kind)}CheckSpec",
-        __base__=entry.params_model,
+        __base__=(entry.params_model, CheckSpecFields),
         __module__=__name__,
-        kind=(Literal[entry.kind], ...),  # type: ignore[valid-type]
-        on_fail=(Literal["reject", "hold"], ...),
-        reason_class=(Identifier | None, None),
+        # the discriminator: a Literal of a name known only at run time, which mypy cannot check
+        kind=(Literal[entry.kind], ...),  # type: ignore[arg-type]
     )
+    assert issubclass(model, CheckSpecFields)
+    return model
 
 
-CHECK_SPEC_MODELS: dict[str, type[CheckParams]] = {
+CHECK_SPEC_MODELS: dict[str, type[CheckSpecFields]] = {
     kind: _check_spec_model(entry) for kind, entry in sorted(REGISTRY.items())
 }
-CheckSpec = Annotated[
-    Union[tuple(CHECK_SPEC_MODELS.values())],  # noqa: UP007 -- built from the registry
-    Field(discriminator="kind"),
-]
+if TYPE_CHECKING:
+    # Every member of the union below is a CheckSpecFields; mypy cannot build it from the registry.
+    CheckSpec: TypeAlias = CheckSpecFields
+else:
+    CheckSpec = Annotated[
+        Union[tuple(CHECK_SPEC_MODELS.values())],  # noqa: UP007 -- built from the registry
+        Field(discriminator="kind"),
+    ]
 
 
 class IntakeRule(StrictModel):

@@ -14,11 +14,20 @@ from __future__ import annotations
 
 import importlib
 import pkgutil
+from collections.abc import Callable
 from dataclasses import dataclass
 from types import ModuleType
-from typing import Any
+from typing import TYPE_CHECKING
 
 from confirm_service.protocol.checks._base import CheckParams
+
+if TYPE_CHECKING:  # the check modules import these at run time; the registry only names them
+    from confirm_service.protocol.facts import CandidateFacts
+    from confirm_service.protocol.matching import CandidateView
+    from confirm_service.protocol.results import CheckResult
+
+CheckEvaluator = Callable[["CandidateFacts", CheckParams, "CandidateView"], "CheckResult"]
+"""A kind's ``evaluate(facts, params, context)``; ``params`` is that kind's own ``Params``."""
 
 RESERVED_KEYS = frozenset({"kind", "on_fail", "reason_class"})
 
@@ -29,7 +38,7 @@ class CheckKind:
 
     kind: str
     params_model: type[CheckParams]
-    evaluate: Any
+    evaluate: CheckEvaluator
     module: ModuleType
     doc: str
 
