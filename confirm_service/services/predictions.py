@@ -11,13 +11,14 @@ import os
 from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import datetime, timedelta
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from confirm_service.cautions import NOT_A_DETECTION, SITE_SAFETY
 from confirm_service.physics import (
     MODEL_DESCRIPTION,
     PhysicsInputError,
     SignalMeasurement,
+    VisibilityWindow,
     barycentric_frequency_hz,
     current_ephemeris,
     drift_from_acceleration_hz_s,
@@ -35,6 +36,9 @@ from confirm_service.schemas.predictions import (
     VisibilityResult,
     VisibilityWindowResult,
 )
+
+if TYPE_CHECKING:
+    from astropy.coordinates import EarthLocation
 
 __all__ = ["compute_prediction", "compute_visibility"]
 
@@ -158,18 +162,7 @@ def compute_prediction(
 def _with_prediction(
     location, target, when, time, frequency, drift, sigma_f, sigma_drift, to_site, to_time, echo
 ) -> PredictionResult:
-    if to_site is None:
-        to_location = location
-        to_lat, to_lon, to_elev = (
-            echo["site_lat_deg"],
-            echo["site_lon_deg"],
-            echo["site_elevation_m"],
-        )
-    else:
-        if len(to_site) != 3:
-            raise PhysicsInputError("to_site", "give (lat_deg, lon_deg, elevation_m)")
-        to_lat, to_lon, to_elev = (float(x) for x in to_site)
-        to_location = _site(to_lat, to_lon, to_elev, "to_site_")
+    to_location, (to_lat, to_lon, to_elev) = _destination(location, to_site, echo)
     to_moment = time if to_time is None else to_time
     to_when = utc_time(to_moment, "to_time")
     measurement = SignalMeasurement(
@@ -182,14 +175,7 @@ def _with_prediction(
     )
     with _fields(unix_s="time", to_unix_s="to_time", frequency_hz="observed_frequency_hz"):
         prediction = predict_signal(measurement, target, to_location, float(to_when.unix))
-    notes = [CAUTION]
-    if drift is None:
-        notes.append("No drift given: residual drift taken as 0 (constant barycentric frequency).")
     gap = float((to_when - when).to_value("s"))
-    if gap != 0.0 and sigma_drift is None:
-        notes.append(
-            "No drift uncertainty given: the frequency uncertainty does not grow with the time gap."
-        )
     return PredictionResult(
         **echo,
         to_site_lat_deg=to_lat,
@@ -211,8 +197,34 @@ def _with_prediction(
         site_distance_km=site_distance_km(location, to_location),
         ephemeris=_ephemeris_name(),
         model=MODEL_DESCRIPTION,
-        notes=notes,
+        notes=_prediction_notes(drift is None, gap != 0.0 and sigma_drift is None),
     )
+
+
+def _destination(
+    location: EarthLocation, to_site: tuple[float, float, float] | None, echo: dict[str, Any]
+) -> tuple[EarthLocation, tuple[float, float, float]]:
+    """The site a prediction is for, and its (lat_deg, lon_deg, elevation_m): by default the
+    detecting site (its values as echoed)."""
+    if to_site is None:
+        here = (echo["site_lat_deg"], echo["site_lon_deg"], echo["site_elevation_m"])
+        return location, here
+    if len(to_site) != 3:
+        raise PhysicsInputError("to_site", "give (lat_deg, lon_deg, elevation_m)")
+    to_lat, to_lon, to_elev = (float(x) for x in to_site)
+    return _site(to_lat, to_lon, to_elev, "to_site_"), (to_lat, to_lon, to_elev)
+
+
+def _prediction_notes(no_drift: bool, fixed_uncertainty: bool) -> list[str]:
+    """The caution, and what the prediction assumed for values not given."""
+    notes = [CAUTION]
+    if no_drift:
+        notes.append("No drift given: residual drift taken as 0 (constant barycentric frequency).")
+    if fixed_uncertainty:
+        notes.append(
+            "No drift uncertainty given: the frequency uncertainty does not grow with the time gap."
+        )
+    return notes
 
 
 def compute_visibility(
@@ -233,15 +245,9 @@ def compute_visibility(
     location = _site(site_lat_deg, site_lon_deg, site_elevation_m, "site_")
     target = target_coord(ra_deg, dec_deg)
     utc_time(start, "start")
-    span_days = _optional_finite(days, "days")
-    if span_days is None or not 0.0 < span_days <= MAX_VISIBILITY_DAYS:
-        raise PhysicsInputError("days", f"must lie within 0..{MAX_VISIBILITY_DAYS:.0f}")
-    min_elevation = _optional_finite(min_elevation_deg, "min_elevation_deg")
-    sun_avoidance = _optional_finite(sun_avoidance_deg, "sun_avoidance_deg")
-    step = _optional_finite(step_s, "step_s")
-    if min_elevation is None or sun_avoidance is None or step is None:
-        missing = "min_elevation_deg" if min_elevation is None else "sun_avoidance_deg"
-        raise PhysicsInputError(missing if step is not None else "step_s", "a number is required")
+    span_days, min_elevation, sun_avoidance, step = _visibility_limits(
+        days, min_elevation_deg, sun_avoidance_deg, step_s
+    )
     end = start + timedelta(days=span_days)
     windows = visibility_windows(
         location,
@@ -264,16 +270,33 @@ def compute_visibility(
         min_elevation_deg=min_elevation,
         sun_avoidance_deg=sun_avoidance,
         step_s=step,
-        windows=[
-            VisibilityWindowResult(
-                start=w.start,
-                end=w.end,
-                duration_s=w.duration_s,
-                max_elevation_deg=w.max_elevation_deg,
-                starts_at_search_start=w.starts_at_search_start,
-                ends_at_search_end=w.ends_at_search_end,
-            )
-            for w in windows
-        ],
+        windows=[_window_result(w) for w in windows],
         notes=[VISIBILITY_CAUTION],
+    )
+
+
+def _visibility_limits(
+    days: float, min_elevation_deg: float, sun_avoidance_deg: float, step_s: float
+) -> tuple[float, float, float, float]:
+    """The span (days), elevation limit (deg), Sun avoidance (deg) and step (s), checked."""
+    span_days = _optional_finite(days, "days")
+    if span_days is None or not 0.0 < span_days <= MAX_VISIBILITY_DAYS:
+        raise PhysicsInputError("days", f"must lie within 0..{MAX_VISIBILITY_DAYS:.0f}")
+    min_elevation = _optional_finite(min_elevation_deg, "min_elevation_deg")
+    sun_avoidance = _optional_finite(sun_avoidance_deg, "sun_avoidance_deg")
+    step = _optional_finite(step_s, "step_s")
+    if min_elevation is None or sun_avoidance is None or step is None:
+        missing = "min_elevation_deg" if min_elevation is None else "sun_avoidance_deg"
+        raise PhysicsInputError(missing if step is not None else "step_s", "a number is required")
+    return span_days, min_elevation, sun_avoidance, step
+
+
+def _window_result(window: VisibilityWindow) -> VisibilityWindowResult:
+    return VisibilityWindowResult(
+        start=window.start,
+        end=window.end,
+        duration_s=window.duration_s,
+        max_elevation_deg=window.max_elevation_deg,
+        starts_at_search_start=window.starts_at_search_start,
+        ends_at_search_end=window.ends_at_search_end,
     )
