@@ -19,6 +19,7 @@ import numpy as np
 
 from confirm_service import physics
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
@@ -409,7 +410,7 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     detections += partner_follow_up(app, call, say, partner_label, partner_scan)
     listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
     for summary in listing["items"]:
-        if summary["stage"] == "review" and summary["state"] == "open":
+        if summary["stage"] == "review" and summary["state"] == CandidateState.OPEN:
             for who in ("coordinator-a", "coordinator-b"):
                 call(
                     "POST",
@@ -524,7 +525,8 @@ def _write_and_check_dossier(app: Any, result: DemoResult) -> None:
     db = app.extensions["confirm.db"]
     settings = app.extensions["confirm.settings"]
     best = max(
-        result.candidates, key=lambda c: (c["state"] == "passed_protocol", len(c["history"]))
+        result.candidates,
+        key=lambda c: (c["state"] == CandidateState.PASSED_PROTOCOL, len(c["history"])),
     )
     with db.write() as session:
         document = build_dossier(session, settings, best["id"])

@@ -22,6 +22,7 @@ from confirm_service.config import Settings
 from confirm_service.db import Database
 from confirm_service.models import Candidate, SchedulerRun
 from confirm_service.services import checkpointing, evaluation, scans
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 log = logging.getLogger(__name__)
@@ -41,14 +42,16 @@ def sweep_deadlines(database: Database, settings: Settings, now: datetime) -> st
     with database.read() as session:
         ids = list(
             session.execute(
-                select(Candidate.id).where(Candidate.state == "open").order_by(Candidate.id)
+                select(Candidate.id)
+                .where(Candidate.state == CandidateState.OPEN)
+                .order_by(Candidate.id)
             ).scalars()
         )
     changed = 0
     for candidate_id in ids:
         with database.write() as session:
             candidate = evaluation.locked_candidate(session, candidate_id)
-            if candidate.state != "open":
+            if candidate.state != CandidateState.OPEN:
                 continue
             before = (candidate.state, candidate.stage, candidate.held)
             evaluation.reevaluate(session, SCHEDULER, candidate, now)

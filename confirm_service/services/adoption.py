@@ -12,6 +12,7 @@ from confirm_service.protocol import LoadedProtocol
 from confirm_service.services.evaluation import reevaluate
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import ensure_recorded, mark_active
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
@@ -26,7 +27,10 @@ def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> in
     names = loaded.model.stage_names()
     now = utc_now()
     open_candidates = session.execute(
-        select(Candidate).where(Candidate.state == "open").order_by(Candidate.id).with_for_update()
+        select(Candidate)
+        .where(Candidate.state == CandidateState.OPEN)
+        .order_by(Candidate.id)
+        .with_for_update()
     ).scalars()
     moved = 0
     for candidate in list(open_candidates):
@@ -36,7 +40,7 @@ def adopt_protocol(session: Session, actor: Actor, loaded: LoadedProtocol) -> in
             actor,
             candidate.id,
             (candidate.stage, stage),
-            ("open", "open"),
+            (CandidateState.OPEN, CandidateState.OPEN),
             f"protocol {loaded.name} {loaded.version} adopted by an administrator",
             "protocol_change",
             now,

@@ -20,6 +20,7 @@ from confirm_service.protocol import SignoffStatus, signoff_statuses
 from confirm_service.schemas.candidates import CandidateSummary
 from confirm_service.services import candidate_views, facts
 from confirm_service.services.protocols import protocol_for
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 DEADLINE_HORIZON = timedelta(days=1)
@@ -125,7 +126,7 @@ def attention_for(session: Session, actor: Actor, now: datetime) -> Attention:
     open_rows = list(
         session.execute(
             select(Candidate)
-            .where(Candidate.state == "open")
+            .where(Candidate.state == CandidateState.OPEN)
             .order_by(Candidate.id)
             .limit(OPEN_CANDIDATES_EXAMINED + 1)
         ).scalars()
@@ -219,7 +220,7 @@ def _inconclusive(session: Session) -> list[AttentionItem]:
         select(CheckResult, Candidate)
         .join(Candidate, Candidate.id == CheckResult.candidate_id)
         .where(CheckResult.id.in_(latest), CheckResult.outcome == INCONCLUSIVE)
-        .where(Candidate.state == "open")
+        .where(Candidate.state == CandidateState.OPEN)
         .order_by(CheckResult.candidate_id)
     ).all()
     return [

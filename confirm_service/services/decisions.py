@@ -16,11 +16,12 @@ from confirm_service.services import runtime
 from confirm_service.services.checkpointing import checkpoint_if_due
 from confirm_service.services.evaluation import locked_candidate, reevaluate
 from confirm_service.services.history import add_history
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
 def _require_open(candidate: Candidate) -> None:
-    if candidate.state != "open":
+    if candidate.state != CandidateState.OPEN:
         raise Conflict(
             f"candidate {candidate.id} is {candidate.state}",
             [("state", f"the candidate is already {candidate.state}")],
@@ -29,7 +30,7 @@ def _require_open(candidate: Candidate) -> None:
 
 def withdraw(session: Session, actor: Actor, candidate_id: int, rationale: str) -> Candidate:
     """A person closes a candidate, with a written rationale."""
-    return decide(session, actor, candidate_id, "withdrawn", rationale)
+    return decide(session, actor, candidate_id, CandidateState.WITHDRAWN, rationale)
 
 
 def decide(
@@ -40,7 +41,7 @@ def decide(
     ``passed_protocol`` is never set by hand: it is reached only by passing the protocol's last
     stage with its sign-offs. The decision is pinned to a signed audit checkpoint.
     """
-    if decision not in ("rejected", "withdrawn"):
+    if decision not in (CandidateState.REJECTED, CandidateState.WITHDRAWN):
         raise Invalid(
             "only rejected or withdrawn can be decided by a person",
             [("decision", "must be 'rejected' or 'withdrawn'")],

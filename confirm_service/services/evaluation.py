@@ -32,6 +32,7 @@ from confirm_service.services import runtime
 from confirm_service.services.checkpointing import checkpoint_if_due
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import protocol_of
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
@@ -59,7 +60,7 @@ def candidates_bearing_on(session: Session, observation: Observation) -> list[Ca
     conditions.append(Candidate.reference_detection_id.in_(overlapping))
     query = (
         select(Candidate)
-        .where(Candidate.state == "open", or_(*conditions))
+        .where(Candidate.state == CandidateState.OPEN, or_(*conditions))
         .order_by(Candidate.id)
         .with_for_update()
     )
@@ -284,7 +285,7 @@ def reevaluate_due(session: Session, actor: Actor = SYSTEM) -> int:
     """Re-evaluate every open candidate (deadlines pass with time); returns how many changed."""
     changed = 0
     ids = session.execute(
-        select(Candidate.id).where(Candidate.state == "open").order_by(Candidate.id)
+        select(Candidate.id).where(Candidate.state == CandidateState.OPEN).order_by(Candidate.id)
     ).scalars()
     for candidate_id in list(ids):
         candidate = locked_candidate(session, candidate_id)

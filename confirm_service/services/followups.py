@@ -40,6 +40,7 @@ from confirm_service.services import facts as factbook
 from confirm_service.services import messages
 from confirm_service.services.protocols import protocol_of
 from confirm_service.services.sites import all_sites, site_by_code
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 S = FollowUpState
@@ -279,7 +280,7 @@ def create_request(
     candidate = session.get(Candidate, candidate_id, with_for_update=True)
     if candidate is None:
         raise NotFound(f"no candidate {candidate_id}", [("id", "no such candidate")])
-    if candidate.state != "open":
+    if candidate.state != CandidateState.OPEN:
         raise Conflict(
             f"candidate {candidate_id} is {candidate.state}",
             [("state", "follow-up is only asked for open candidates")],
@@ -320,7 +321,7 @@ def dispatch_intent(
     candidate = session.get(Candidate, intent.candidate_id, with_for_update=True)
     assert candidate is not None
     made = 0
-    current = candidate.state == "open" and candidate.stage == intent.stage
+    current = candidate.state == CandidateState.OPEN and candidate.stage == intent.stage
     if current and intent.kind in REQUEST_KINDS:
         made = _requests_for_intent(session, actor, settings, candidate, intent, now)
     elif intent.kind in NOTICE_KINDS:
@@ -520,7 +521,7 @@ def expire_due(session: Session, actor: Actor, now: datetime) -> tuple[int, int]
     reported = session.execute(
         select(FollowUpRequest)
         .join(Candidate, Candidate.id == FollowUpRequest.candidate_id)
-        .where(FollowUpRequest.status == S.REPORTED.value, Candidate.state != "open")
+        .where(FollowUpRequest.status == S.REPORTED.value, Candidate.state != CandidateState.OPEN)
         .with_for_update()
     ).scalars()
     for request in list(reported):
@@ -648,7 +649,7 @@ def record_report(
     )
     if request is not None and can_move(request.status, S.REPORTED):
         move(session, actor, request, S.REPORTED, "report received")
-    if candidate.state == "open":
+    if candidate.state == CandidateState.OPEN:
         reevaluate(session, actor, candidate)
     return report
 

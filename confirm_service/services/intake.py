@@ -26,6 +26,7 @@ from confirm_service.services import protocols
 from confirm_service.services.evaluation import record_actions, reevaluate
 from confirm_service.services.history import add_history
 from confirm_service.services.protocols import configured_protocol, protocol_of
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 SAME_SIGNAL_SEARCH_HZ = 100_000.0
@@ -127,7 +128,7 @@ def create_candidate(
         protocol_name=protocol.name,
         protocol_sha256=protocol.content_sha256,
         bands_sha256=protocol.bands_sha256,
-        state="open",
+        state=CandidateState.OPEN,
         stage=stage,
         stage_entered_at=now,
         origin=origin,
@@ -147,7 +148,9 @@ def create_candidate(
         )
     )
     reason = f"created ({origin})" + (f": {note}" if note else "")
-    add_history(session, actor, candidate.id, (None, stage), (None, "open"), reason, at=now)
+    add_history(
+        session, actor, candidate.id, (None, stage), (None, CandidateState.OPEN), reason, at=now
+    )
     record(
         session,
         actor,
@@ -207,7 +210,7 @@ def _already_followed(detection_id: int, holder: Candidate, linked: bool) -> Con
     where = f"/api/v1/candidates/{holder.id}"
     action = (
         f"see {where}"
-        if holder.state == "open"
+        if holder.state == CandidateState.OPEN
         else f"it is {holder.state}, decided as recorded at {where}"
     )
     return Conflict(

@@ -32,6 +32,7 @@ from confirm_service.services import facts as factbook
 from confirm_service.services.candidate_views import get_candidate
 from confirm_service.services.protocols import protocol_of
 from confirm_service.services.sites import all_sites, target_by_name
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 TRACK_SAMPLES = 400
@@ -298,7 +299,11 @@ def open_targets(session: Session) -> list[Target]:
     return list(
         session.execute(
             select(Target)
-            .where(Target.id.in_(select(Candidate.target_id).where(Candidate.state == "open")))
+            .where(
+                Target.id.in_(
+                    select(Candidate.target_id).where(Candidate.state == CandidateState.OPEN)
+                )
+            )
             .order_by(Target.name)
         ).scalars()
     )

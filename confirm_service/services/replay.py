@@ -18,6 +18,7 @@ from confirm_service.models import Candidate
 from confirm_service.protocol import LoadedProtocol, evaluate, initial_stage
 from confirm_service.protocol import default_physics_context as physics_context
 from confirm_service.services import facts as factbook
+from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
 
 
@@ -44,14 +45,14 @@ def replay_candidate(
     facts = factbook.candidate_facts(
         session, candidate, protocol, now.timestamp(), physics_context()
     )
-    withdrawn = candidate.state == "withdrawn"
+    withdrawn = candidate.state == CandidateState.WITHDRAWN
     start = initial_stage(protocol)
     from dataclasses import replace
 
     facts = replace(
         facts,
         stage=start,
-        state="withdrawn" if withdrawn else "open",
+        state=CandidateState.WITHDRAWN if withdrawn else CandidateState.OPEN,
         stage_entered_unix_s=candidate.created_at.timestamp(),
         manual_hold_released=False,
     )
