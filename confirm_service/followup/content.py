@@ -17,7 +17,6 @@ Everything is JSON-ready (floats in Hz, Hz/s, s, deg; times ISO 8601 UTC).
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -34,6 +33,7 @@ from confirm_service.protocol import (
     TargetFact,
     search_windows_hz,
 )
+from confirm_service.protocol.checks import doppler_consistency
 from confirm_service.protocol.loader import ProtocolLike, model_of
 from confirm_service.protocol.reference import predict_from_reference
 
@@ -69,15 +69,15 @@ class Discovery:
 def drift_tolerance_hz_s(
     protocol: ProtocolLike, partner_resolution_hz_s: float, reference_resolution_hz_s: float
 ) -> float:
-    """The doppler_consistency tolerance between a partner scan and the reference (Hz/s):
-    ``max(tolerance_hz_s, resolution_multiplier * hypot(r_partner, r_reference))``, with the
-    protocol's first doppler_consistency check's keys."""
+    """The doppler_consistency tolerance between a partner scan and the reference (Hz/s), as
+    the protocol's first doppler_consistency check computes it."""
     model = model_of(protocol)
     for stage in model.stages:
         for check in stage.checks:
-            if check.kind == "doppler_consistency":
-                combined = math.hypot(partner_resolution_hz_s, reference_resolution_hz_s)
-                return max(check.tolerance_hz_s, check.resolution_multiplier * combined)
+            if isinstance(check, doppler_consistency.Params):
+                return doppler_consistency.tolerance_hz_s(
+                    check, partner_resolution_hz_s, reference_resolution_hz_s
+                )
     return DEFAULT_DRIFT_TOLERANCE_HZ_S
 
 
@@ -121,7 +121,7 @@ def _iso(unix_s: float) -> str:
 
 
 def _window_entry(
-    protocol: Any,
+    protocol: ProtocolLike,
     context: PhysicsContext,
     partner: PartnerSite,
     discovery: Discovery,
@@ -194,7 +194,7 @@ def _window_entry(
 
 
 def build_request_content(
-    protocol: Any,
+    protocol: ProtocolLike,
     context: PhysicsContext,
     discovery: Discovery,
     partner: PartnerSite,

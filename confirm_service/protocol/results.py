@@ -7,7 +7,7 @@ of those), so two evaluations of the same facts compare equal and serialise to t
 from __future__ import annotations
 
 from dataclasses import asdict, dataclass, field
-from typing import Any, Literal
+from typing import Any, Literal, TypedDict
 
 from confirm_service.states import CheckOutcome
 
@@ -23,6 +23,16 @@ Outcome = Literal["pass", "fail", "pending", "not_applicable", "inconclusive"]
 
 ACTION_ESCALATE = "escalate"
 REASON_CLASS_EXPIRED = "expired"
+
+
+class Measurement(TypedDict, total=False):
+    """The measured part of a check result, shared by a check's several outcomes."""
+
+    measured: float | None
+    expected: float | None
+    tolerance: float | None
+    unit: str | None
+    details: dict[str, Any]
 
 
 @dataclass(frozen=True, slots=True)

@@ -46,6 +46,7 @@ from confirm_service.protocol.results import (
     PASS,
     PENDING,
     CheckResult,
+    Measurement,
 )
 
 if TYPE_CHECKING:
@@ -167,7 +168,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     details["mismatched"] = [e.label for e in mismatched]
     worst = max(powered, key=lambda e: abs(e.residual_hz_s - r0) / tolerance[e.label])
     details["worst"] = worst.label
-    common = {
+    common: Measurement = {
         "measured": worst.residual_hz_s,
         "expected": r0,
         "tolerance": tolerance[worst.label],
@@ -211,13 +212,22 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     )
 
 
-def _tolerance(params: Params, resolution_hz_s: float, reference: Any) -> float:
-    combined = math.hypot(resolution_hz_s, reference.drift_resolution_hz_s)
+def tolerance_hz_s(
+    params: Params, resolution_hz_s: float, reference_resolution_hz_s: float
+) -> float:
+    """Largest drift difference (Hz/s) allowed between a look of drift resolution
+    ``resolution_hz_s`` and the reference's: the fixed tolerance or the multiple of the combined
+    resolutions, whichever is larger."""
+    combined = math.hypot(resolution_hz_s, reference_resolution_hz_s)
     return max(params.tolerance_hz_s, params.resolution_multiplier * combined)
 
 
+def _tolerance(params: Params, resolution_hz_s: float, reference: Any) -> float:
+    return tolerance_hz_s(params, resolution_hz_s, reference.drift_resolution_hz_s)
+
+
 def _without_power(
-    r0: float, others: int, largest_hz_s: float, threshold_hz_s: float, details: dict
+    r0: float, others: int, largest_hz_s: float, threshold_hz_s: float, details: dict[str, Any]
 ) -> CheckResult:
     return CheckResult(
         KIND,

@@ -118,9 +118,14 @@ def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -
         ended_after = scan.end_unix_s >= begin
         if view.covers and not view.present and ended_after and _far(context, scan.site):
             missed.append(f"scan {scan.id}")
-    for view in context.reports:
-        report = view.report
+    for report_view in context.reports:
+        report = report_view.report
         ended_after = report.unix_s + report.duration_s >= begin
-        if view.covers and not view.present and ended_after and _far(context, report.site):
+        if (
+            report_view.covers
+            and not report_view.present
+            and ended_after
+            and _far(context, report.site)
+        ):
             missed.append(f"report {report.id}")
     return missed

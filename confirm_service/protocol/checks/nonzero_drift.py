@@ -15,7 +15,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from confirm_service.protocol.checks._base import CheckParams, PositiveFloat, format_hz_s
-from confirm_service.protocol.results import FAIL, NOT_APPLICABLE, PASS, CheckResult
+from confirm_service.protocol.results import FAIL, NOT_APPLICABLE, PASS, CheckResult, Measurement
 
 if TYPE_CHECKING:
     from confirm_service.protocol.facts import CandidateFacts
@@ -50,7 +50,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
         "zero_drift": len(zero),
         "earth_drift_hz_s": first.earth_drift_hz_s,
     }
-    common = {
+    common: Measurement = {
         "measured": abs(first.detection.drift_hz_s),
         "expected": abs(first.earth_drift_hz_s),
         "tolerance": k * first.drift_resolution_hz_s,

@@ -19,10 +19,17 @@ signal is on the track in less than ``min_on_fraction`` of the on-source scans.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from confirm_service.protocol.checks._base import CheckParams, Fraction, PositiveInt
-from confirm_service.protocol.results import FAIL, INCONCLUSIVE, PASS, PENDING, CheckResult
+from confirm_service.protocol.results import (
+    FAIL,
+    INCONCLUSIVE,
+    PASS,
+    PENDING,
+    CheckResult,
+    Measurement,
+)
 
 if TYPE_CHECKING:
     from confirm_service.protocol.facts import CandidateFacts
@@ -85,7 +92,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     if len(on_scans) < params.min_on_scans or len(off_scans) < params.min_off_scans:
         return _short_cadence(label, params, members, on_scans, off_scans, details)
     fraction = len(on_present) / len(on_scans)
-    common = {
+    common: Measurement = {
         "measured": fraction,
         "expected": params.min_on_fraction,
         "unit": "fraction of on-source scans",
@@ -120,13 +127,13 @@ def _off_source_result(
     label: str,
     on_track: list[ObservationView],
     nearby: list[ObservationView],
-    details: dict,
+    details: dict[str, Any],
 ) -> CheckResult | None:
     """Fail on the track or in two off-source scans; inconclusive on one ambiguous scan."""
     seen = len(on_track) + len(nearby)
     if not seen:
         return None
-    common = {
+    common: Measurement = {
         "measured": float(seen),
         "expected": 0.0,
         "tolerance": 0.0,
@@ -158,7 +165,7 @@ def _short_cadence(
     members: list[ObservationView],
     on_scans: list[ObservationView],
     off_scans: list[ObservationView],
-    details: dict,
+    details: dict[str, Any],
 ) -> CheckResult:
     """Pending for more scans, or inconclusive when partly covering scans are the shortfall."""
     partial_on = [v for v in members if v.is_target_scan and v.partly_covers and v not in on_scans]
