@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import io
 from datetime import UTC, datetime
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from confirm_service.services.observing_views import (
     SIGMA_BAND,
@@ -19,6 +19,9 @@ from confirm_service.services.observing_views import (
     ElevationTrack,
 )
 from confirm_service.timeutil import UNIX_EPOCH_MJD
+
+if TYPE_CHECKING:  # matplotlib loads only when a picture is drawn
+    from matplotlib.axes import Axes
 
 SITE_STYLES = (
     ("#0072B2", "-", "o", "//"),
@@ -193,54 +196,62 @@ def elevation_at_sites(target: str, tracks: list[ElevationTrack]) -> str:
     )
     axes = np.atleast_1d(axes)
     for index, (ax, track) in enumerate(zip(axes, tracks, strict=False)):
-        colour, line, _marker, _hatch = _style(index)
-        x = _dates(track.unix_s)
-        for number, (start, end, _peak) in enumerate(track.windows):
-            ax.axvspan(
-                *_dates([start.timestamp(), end.timestamp()]),
-                facecolor="#dddddd",
-                edgecolor="#777777",
-                hatch="..",
-                linewidth=0.0,
-                label="observable window" if number == 0 else None,
-            )
-        close = track.sun_too_close
-        if not close.any():
-            ax.text(
-                0.01,
-                0.04,
-                f"Sun never within {track.sun_avoidance_deg:g}° in these 48 h",
-                transform=ax.transAxes,
-                fontsize=7,
-            )
-        else:
-            ax.fill_between(
-                x,
-                -30,
-                90,
-                where=close,
-                facecolor="none",
-                edgecolor="#444444",
-                hatch="xxx",
-                linewidth=0.0,
-                label=f"Sun within {track.sun_avoidance_deg:g}°",
-            )
-        ax.plot(
-            x, track.elevation_deg, color=colour, linestyle=line, linewidth=1.8, label="elevation"
-        )
-        ax.axhline(
-            track.min_elevation_deg,
-            color="black",
-            linestyle="--",
-            linewidth=1.0,
-            label=f"site limit {track.min_elevation_deg:g}°",
-        )
-        ax.set_ylim(-30, 90)
-        ax.set_ylabel("Elevation (deg)")
-        ax.set_title(f"{track.site} · {track.site_name}", fontsize=10, loc="left")
-        ax.legend(loc="upper right", fontsize=7, framealpha=0.9, ncol=2)
+        _elevation_panel(ax, track, index)
         if index == 0:
             _time_axes(ax, top=True)
     axes[-1].set_xlabel(TIME_LABEL)
     figure.suptitle(f"{target}: elevation over the next 48 hours at each site", fontsize=11)
     return _svg(figure)
+
+
+def _elevation_panel(ax: Axes, track: ElevationTrack, index: int) -> None:
+    """One site's panel: windows shaded, Sun-avoidance hatched, elevation and the site limit."""
+    colour, line, _marker, _hatch = _style(index)
+    x = _dates(track.unix_s)
+    for number, (start, end, _peak) in enumerate(track.windows):
+        ax.axvspan(
+            *_dates([start.timestamp(), end.timestamp()]),
+            facecolor="#dddddd",
+            edgecolor="#777777",
+            hatch="..",
+            linewidth=0.0,
+            label="observable window" if number == 0 else None,
+        )
+    _sun_avoidance(ax, track, x)
+    ax.plot(x, track.elevation_deg, color=colour, linestyle=line, linewidth=1.8, label="elevation")
+    ax.axhline(
+        track.min_elevation_deg,
+        color="black",
+        linestyle="--",
+        linewidth=1.0,
+        label=f"site limit {track.min_elevation_deg:g}°",
+    )
+    ax.set_ylim(-30, 90)
+    ax.set_ylabel("Elevation (deg)")
+    ax.set_title(f"{track.site} · {track.site_name}", fontsize=10, loc="left")
+    ax.legend(loc="upper right", fontsize=7, framealpha=0.9, ncol=2)
+
+
+def _sun_avoidance(ax: Axes, track: ElevationTrack, x: Any) -> None:
+    """Hatch the times the Sun is closer than the site's avoidance angle, or say it never is."""
+    close = track.sun_too_close
+    if not close.any():
+        ax.text(
+            0.01,
+            0.04,
+            f"Sun never within {track.sun_avoidance_deg:g}° in these 48 h",
+            transform=ax.transAxes,
+            fontsize=7,
+        )
+        return
+    ax.fill_between(
+        x,
+        -30,
+        90,
+        where=close,
+        facecolor="none",
+        edgecolor="#444444",
+        hatch="xxx",
+        linewidth=0.0,
+        label=f"Sun within {track.sun_avoidance_deg:g}°",
+    )
