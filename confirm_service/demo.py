@@ -13,7 +13,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from datetime import UTC, datetime, timedelta
 from pathlib import Path
-from typing import Any, NotRequired, TypedDict
+from typing import TYPE_CHECKING, Any, NotRequired, TypedDict
 
 import numpy as np
 
@@ -21,6 +21,9 @@ from confirm_service import physics
 from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION
 from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
+
+if TYPE_CHECKING:
+    from confirm_service.db import Database
 
 
 class DemoSite(TypedDict):
@@ -374,15 +377,7 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     upgrade_database(url)
     app = create_app({"database_url": url, "instance_path": folder})
     db = app.extensions["confirm.db"]
-    secrets = {}
-    with db.write() as session:
-        for name, role in [
-            ("pipeline-pra", "pipeline"),
-            ("pipeline-tfo", "pipeline"),
-            ("coordinator-a", "coordinator"),
-            ("coordinator-b", "coordinator"),
-        ]:
-            _, secrets[name] = create_token(session, SYSTEM, name, role)
+    secrets = _machine_tokens(db)
     client = app.test_client()
 
     def call(method: str, path: str, who: str, body: Any = None) -> Any:
@@ -393,11 +388,7 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
             raise RuntimeError(f"{method} {path}: {response.status_code} {response.get_json()}")
         return response.get_json()
 
-    for site in SITES:
-        call("POST", "/api/v1/sites", "coordinator-a", site)
-    for target in TARGETS:
-        call("POST", "/api/v1/targets", "coordinator-a", target)
-    say(f"registered {len(SITES)} sites and {len(TARGETS)} targets")
+    _register_sites_and_targets(call, say)
     with db.write() as session:  # a site token names a registered site
         _, secrets["site-tfo"] = create_token(session, SYSTEM, "site-tfo", "site", "TFO")
     detections = 0
@@ -408,6 +399,44 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
         new = post_like_a_pipeline(call, who, scan)
         say(f"  {label:<32} {scan['site']} {scan['start'][:16]}Z  {screening_line(call, new)}")
     detections += partner_follow_up(app, call, say, partner_label, partner_scan)
+    _sign_off_candidates_in_review(call)
+    listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
+    result.candidates = [
+        call("GET", f"/api/v1/candidates/{c['id']}", "coordinator-a") for c in listing["items"]
+    ]
+    result.counts = {
+        "sites": len(SITES),
+        "targets": len(TARGETS),
+        "detections": detections,
+        "candidates": len(result.candidates),
+    }
+    _write_and_check_dossier(app, result)
+    app.extensions["confirm.db"].dispose()
+    return result
+
+
+def _machine_tokens(db: Database) -> dict[str, str]:
+    """Token secrets of the demo's pipelines and coordinators, by token name."""
+    from confirm_service.actor import SYSTEM
+    from confirm_service.services.tokens import create_token
+
+    secrets = {}
+    with db.write() as session:
+        for name, role in DEMO_TOKENS:
+            _, secrets[name] = create_token(session, SYSTEM, name, role)
+    return secrets
+
+
+def _register_sites_and_targets(call: Callable[..., Any], say: Callable[[str], None]) -> None:
+    for site in SITES:
+        call("POST", "/api/v1/sites", "coordinator-a", site)
+    for target in TARGETS:
+        call("POST", "/api/v1/targets", "coordinator-a", target)
+    say(f"registered {len(SITES)} sites and {len(TARGETS)} targets")
+
+
+def _sign_off_candidates_in_review(call: Callable[..., Any]) -> None:
+    """Both demo coordinators approve every open candidate in the review stage."""
     listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
     for summary in listing["items"]:
         if summary["stage"] == "review" and summary["state"] == CandidateState.OPEN:
@@ -422,19 +451,6 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
                         "re-observation and the independent site agree with a sky-fixed source.",
                     },
                 )
-    listing = call("GET", "/api/v1/candidates?limit=100", "coordinator-a")
-    result.candidates = [
-        call("GET", f"/api/v1/candidates/{c['id']}", "coordinator-a") for c in listing["items"]
-    ]
-    result.counts = {
-        "sites": len(SITES),
-        "targets": len(TARGETS),
-        "detections": detections,
-        "candidates": len(result.candidates),
-    }
-    _write_and_check_dossier(app, result)
-    app.extensions["confirm.db"].dispose()
-    return result
 
 
 class PartnerReceiver:
@@ -594,6 +610,12 @@ def summary_lines(result: DemoResult) -> list[str]:
     return lines
 
 
+DEMO_TOKENS = (
+    ("pipeline-pra", "pipeline"),
+    ("pipeline-tfo", "pipeline"),
+    ("coordinator-a", "coordinator"),
+    ("coordinator-b", "coordinator"),
+)
 DEMO_PEOPLE = (("demo-coordinator", "coordinator"), ("demo-viewer", "viewer"))
 
 

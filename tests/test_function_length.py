@@ -22,7 +22,6 @@ LONGER: dict[str, int] = {
     "protocol/reference.py:predict_references": 85,
     "demo.py:scenario_scans": 79,
     "services/intake.py:create_candidate": 79,
-    "demo.py:run_demo": 75,
     "services/predictions.py:compute_prediction": 72,
     "followup/content.py:_window_entry": 71,
     "services/followups.py:record_report": 67,
