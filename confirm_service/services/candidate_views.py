@@ -235,8 +235,10 @@ def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
         pointing_ra_deg=report.pointing_ra_deg,
         pointing_dec_deg=report.pointing_dec_deg,
         observation_id=report.observation_id,
+        time_offset_s=report.time_offset_s,
         notes=report.notes,
         received_at=report.received_at,
+        warnings=list(report.warnings or []),
     )
 
 
