@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 from sqlalchemy import ColumnElement, and_, func, or_, select
@@ -194,6 +194,8 @@ def linked_detections(session: Session, candidate_id: int) -> list[LinkedDetecti
             snr=detection.snr,
             on_source=observation.on_source,
             start=observation.start,
+            time_offset_s=detection.time_offset_s,
+            time=observation.start + timedelta(seconds=detection.time_offset_s),
             role=link.role,
         )
         for link, detection, observation, site in rows

@@ -83,7 +83,11 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
                 measured=distance,
                 expected=params.min_distance_km,
                 unit="km",
-                details={"sighting": sighting.label, "site": sighting.site.code},
+                details={
+                    "sighting": sighting.label,
+                    "site": sighting.site.code,
+                    "offset_hz": sighting.offset_hz,
+                },
             )
         if sighting.site not in seen_sites:
             seen_sites.append(sighting.site)
