@@ -664,7 +664,7 @@ def report_warnings(
     predicted for its site at the report's instant (``observed_at + time_offset_s``), a look
     whose band misses the prediction, a candidate already decided. The report is kept anyway."""
     warnings = []
-    if candidate.state != "open":
+    if candidate.state != CandidateState.OPEN:
         warnings.append(
             f"Candidate {candidate.id} is {candidate.state}: the report is stored and audited "
             "but does not change the candidate (a coordinator may reopen it)."
