@@ -19,6 +19,7 @@ Partners who keep checkpoints and ask for consistency proofs catch what this loc
 from __future__ import annotations
 
 from collections import deque
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from datetime import datetime
 
@@ -207,9 +208,14 @@ class _Walk:
 
 
 def verify_log(
-    session: Session, public_key_pem: str | None, batch_size: int = store.DEFAULT_BATCH_SIZE
+    session: Session,
+    public_key_pem: str | None,
+    batch_size: int = store.DEFAULT_BATCH_SIZE,
+    progress: Callable[[int], None] | None = None,
 ) -> VerificationReport:
     """Recompute every leaf hash, root and signature; report the first problem (module doc).
+
+    ``progress(batch_size)`` is called after every ``batch_size`` entries checked.
 
     ``public_key_pem`` None checks the entries alone, for a log with no checkpoint yet (a
     checkpoint found then is reported as unverifiable). Raises :class:`ValueError` if
@@ -224,10 +230,12 @@ def verify_log(
     head = store.head_size(session)
     finding = walk.check_checkpoints_at(0)
     if finding is None:
-        for entry in store.iter_entries(session, batch_size=batch_size):
+        for checked, entry in enumerate(store.iter_entries(session, batch_size=batch_size), 1):
             finding = walk.check_entry(entry)
             if finding is not None:
                 break
+            if progress is not None and checked % batch_size == 0:
+                progress(batch_size)
     if finding is None:
         finding = walk.check_end(head)
     return VerificationReport(

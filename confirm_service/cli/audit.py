@@ -36,6 +36,9 @@ def verify(public_key_file: Path | None) -> None:
 
     Before the first checkpoint there is no key yet: the entries are checked alone.
     """
+    from confirm_service.audit.store import head_size
+    from confirm_service.cli.progress import counted
+
     database = open_database()
     try:
         with database.read() as session:
@@ -43,7 +46,8 @@ def verify(public_key_file: Path | None) -> None:
                 pem = _verifying_key_pem_if_any()
             else:
                 pem = _verifying_key_pem(public_key_file)
-            report = verify_log(session, pem)
+            with counted("verifying the audit log", head_size(session) or 0) as advance:
+                report = verify_log(session, pem, progress=advance)
     finally:
         database.dispose()
     line = report.summary()

@@ -244,9 +244,12 @@ def test_intact_log_verifies_and_reports_coverage(db, settings, clock):
     append(db, 3, start=6)
     checkpoint(db, settings)
     append(db, 2, start=9)
+    steps: list[int] = []
     with db.read() as session:
-        report = verify_log(session, checkpoints.service_public_key(settings)[0], batch_size=4)
+        key = checkpoints.service_public_key(settings)[0]
+        report = verify_log(session, key, batch_size=4, progress=steps.append)
     assert report.ok, report.problem
+    assert steps == [4, 4]  # after entries 4 and 8 of 11, for a progress bar
     assert (report.entries_checked, report.checkpoints_checked) == (11, 2)
     assert report.covered_size == 9 and report.head_size == 11
     assert report.first_bad_seq is None and report.problem is None
