@@ -24,7 +24,7 @@ LONGER: dict[str, int] = {
     "services/intake.py:create_candidate": 79,
     "protocol/checks/reobservation.py:evaluate": 77,
     "followup/content.py:_window_entry": 72,
-    "services/predictions.py:compute_prediction": 72,
+    "services/predictions.py:compute_prediction": 58,
     "services/followups.py:record_report": 70,
     "protocol/checks/on_off_cadence.py:evaluate": 66,
     "synthetic.py:make_cadence": 64,

@@ -38,7 +38,8 @@ from confirm_service.schemas.predictions import (
 )
 
 if TYPE_CHECKING:
-    from astropy.coordinates import EarthLocation
+    from astropy.coordinates import EarthLocation, SkyCoord
+    from astropy.time import Time
 
 __all__ = ["compute_prediction", "compute_visibility"]
 
@@ -122,12 +123,8 @@ def compute_prediction(
     target = target_coord(ra_deg, dec_deg, **motion)
     when = utc_time(time, "time")
     frequency = float(require_positive_frequency(observed_frequency_hz, "observed_frequency_hz"))
-    drift = _optional_finite(observed_drift_hz_s, "observed_drift_hz_s")
-    sigma_drift = _optional_finite(
-        drift_uncertainty_hz_s, "drift_uncertainty_hz_s", non_negative=True
-    )
-    sigma_f = _optional_finite(
-        frequency_uncertainty_hz, "frequency_uncertainty_hz", non_negative=True
+    drift, sigma_drift, sigma_f = _checked_drift_and_uncertainties(
+        observed_drift_hz_s, drift_uncertainty_hz_s, frequency_uncertainty_hz
     )
     echo = dict(
         site_lat_deg=float(site_lat_deg),
@@ -143,19 +140,43 @@ def compute_prediction(
         **{k: v for k, v in motion.items() if k != "epoch"},
     )
     if to_site is None and to_time is None:
-        velocity, acceleration = radial_velocity_and_acceleration(location, target, when)
-        earth = float(drift_from_acceleration_hz_s(frequency, velocity, acceleration))
-        return PredictionResult(
-            **echo,
-            radial_velocity_m_s=float(velocity),
-            earth_drift_hz_s=earth,
-            barycentric_frequency_hz=float(barycentric_frequency_hz(frequency, velocity)),
-            residual_drift_hz_s=None if drift is None else drift - earth,
-            ephemeris=_ephemeris_name(),
-            notes=[CAUTION],
-        )
+        return _at_detection(location, target, when, frequency, drift, echo)
     return _with_prediction(
         location, target, when, time, frequency, drift, sigma_f, sigma_drift, to_site, to_time, echo
+    )
+
+
+def _checked_drift_and_uncertainties(
+    drift_hz_s: float | None, drift_uncertainty_hz_s: float | None, frequency_uncertainty_hz: float
+) -> tuple[float | None, float | None, float | None]:
+    """The observed drift (Hz/s) and the drift (Hz/s) and frequency (Hz) uncertainties, each
+    finite when given, the uncertainties not negative."""
+    return (
+        _optional_finite(drift_hz_s, "observed_drift_hz_s"),
+        _optional_finite(drift_uncertainty_hz_s, "drift_uncertainty_hz_s", non_negative=True),
+        _optional_finite(frequency_uncertainty_hz, "frequency_uncertainty_hz", non_negative=True),
+    )
+
+
+def _at_detection(
+    location: EarthLocation,
+    target: SkyCoord,
+    when: Time,
+    frequency_hz: float,
+    drift_hz_s: float | None,
+    echo: dict[str, Any],
+) -> PredictionResult:
+    """The Doppler quantities at the detecting site and time alone."""
+    velocity, acceleration = radial_velocity_and_acceleration(location, target, when)
+    earth = float(drift_from_acceleration_hz_s(frequency_hz, velocity, acceleration))
+    return PredictionResult(
+        **echo,
+        radial_velocity_m_s=float(velocity),
+        earth_drift_hz_s=earth,
+        barycentric_frequency_hz=float(barycentric_frequency_hz(frequency_hz, velocity)),
+        residual_drift_hz_s=None if drift_hz_s is None else drift_hz_s - earth,
+        ephemeris=_ephemeris_name(),
+        notes=[CAUTION],
     )
 
 
