@@ -30,7 +30,7 @@ LONGER: dict[str, int] = {
     "synthetic.py:make_cadence": 64,
     "services/screening.py:screen_after_completion": 61,
     "services/decisions.py:add_signoff": 58,
-    "services/observations.py:create_observation": 56,
+    "services/observations.py:create_observation": 55,
     "services/screening.py:replay_run": 55,
     "protocol/machine.py:intake_decision": 54,
     "services/followups.py:_requests_for_intent": 52,

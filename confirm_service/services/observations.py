@@ -225,6 +225,16 @@ def ingest_detections(
     return ids, candidate_ids
 
 
+def _sky_position(data: ObservationIn, target: Target | None) -> tuple[float, float]:
+    """The scan's pointing (deg), or its target's position where a coordinate is not given."""
+    if data.pointing_ra_deg is not None and data.pointing_dec_deg is not None:
+        return data.pointing_ra_deg, data.pointing_dec_deg
+    assert target is not None  # create_observation refuses a scan with neither
+    ra = data.pointing_ra_deg if data.pointing_ra_deg is not None else target.ra_deg
+    dec = data.pointing_dec_deg if data.pointing_dec_deg is not None else target.dec_deg
+    return ra, dec
+
+
 def create_observation(
     session: Session, actor: Actor, data: ObservationIn, clock_skew_s: float, max_batch: int
 ) -> tuple[Observation, list[int], list[int]]:
@@ -236,8 +246,7 @@ def create_observation(
         )
     site: Site = site_by_code(session, data.site)
     target: Target | None = target_by_name(session, data.target) if data.target else None
-    ra = data.pointing_ra_deg if data.pointing_ra_deg is not None else target.ra_deg  # type: ignore[union-attr]
-    dec = data.pointing_dec_deg if data.pointing_dec_deg is not None else target.dec_deg  # type: ignore[union-attr]
+    ra, dec = _sky_position(data, target)
     if len(data.detections) > max_batch:
         raise TooLarge(
             f"{len(data.detections)} inline detections; the limit is {max_batch}",

@@ -11,7 +11,7 @@ from collections import OrderedDict
 from collections.abc import Callable, Hashable
 from dataclasses import dataclass, field
 from datetime import datetime, timedelta
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from numpy.typing import NDArray
@@ -34,6 +34,9 @@ from confirm_service.services.protocols import protocol_of
 from confirm_service.services.sites import all_sites, target_by_name
 from confirm_service.states import CandidateState
 from confirm_service.timeutil import utc_now
+
+if TYPE_CHECKING:
+    from astropy.coordinates import SkyCoord
 
 TRACK_SAMPLES = 400
 ELEVATION_STEP_S = 600.0
@@ -79,7 +82,9 @@ class CandidateTracks:
     tracks: list[SiteTrack]
 
 
-def _measurement(session: Session, candidate: Candidate) -> tuple[object, object]:
+def _measurement(
+    session: Session, candidate: Candidate
+) -> tuple[physics.SignalMeasurement, SkyCoord]:
     """The reference signal as a physics measurement, and the target's coordinates."""
     protocol = protocol_of(session, candidate)
     context = default_physics_context()
@@ -170,8 +175,8 @@ def _candidate_tracks(session: Session, candidate: Candidate) -> CandidateTracks
     by_site: dict[str, list[tuple]] = {}
     for row in rows:
         by_site.setdefault(row[3].code, []).append(row)
-    starts = [o.start.timestamp() for _r, _d, o, _s in rows] or [measurement.unix_s]  # type: ignore[attr-defined]
-    ends = [o.start.timestamp() + o.duration_s for _r, _d, o, _s in rows] or [measurement.unix_s]  # type: ignore[attr-defined]
+    starts = [o.start.timestamp() for _r, _d, o, _s in rows] or [measurement.unix_s]
+    ends = [o.start.timestamp() + o.duration_s for _r, _d, o, _s in rows] or [measurement.unix_s]
     margin = max(1800.0, 0.05 * (max(ends) - min(starts)))
     span = np.linspace(min(starts) - margin, max(ends) + margin, TRACK_SAMPLES)
     hits: list[HitPoint] = []
@@ -179,10 +184,10 @@ def _candidate_tracks(session: Session, candidate: Candidate) -> CandidateTracks
     for code, site_rows in sorted(by_site.items()):
         site = site_rows[0][3]
         location = physics.site_location(site.latitude_deg, site.longitude_deg, site.elevation_m)
-        track = physics.predict_signal(measurement, target, location, span, context.cache)  # type: ignore[arg-type]
+        track = physics.predict_signal(measurement, target, location, span, context.cache)
         tracks.append(SiteTrack(code, span, track.frequency_hz, track.frequency_uncertainty_hz))
         times = np.array([o.start.timestamp() + d.time_offset_s for _r, d, o, _s in site_rows])
-        at_hits = physics.predict_signal(measurement, target, location, times, context.cache)  # type: ignore[arg-type]
+        at_hits = physics.predict_signal(measurement, target, location, times, context.cache)
         for index, (role, detection, observation, _site) in enumerate(site_rows):
             hits.append(
                 HitPoint(
@@ -204,7 +209,7 @@ def _candidate_tracks(session: Session, candidate: Candidate) -> CandidateTracks
             )
     hits.sort(key=lambda h: (h.unix_s, h.detection_id))
     return CandidateTracks(
-        reference_frequency_hz=float(measurement.frequency_hz),  # type: ignore[attr-defined]
+        reference_frequency_hz=float(measurement.frequency_hz),
         residual_drift_hz_s=candidate.residual_drift_hz_s,
         hits=hits,
         tracks=tracks,
