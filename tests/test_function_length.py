@@ -32,7 +32,7 @@ LONGER: dict[str, int] = {
     "services/decisions.py:add_signoff": 58,
     "services/observations.py:create_observation": 55,
     "services/screening.py:replay_run": 55,
-    "protocol/machine.py:intake_decision": 54,
+    "protocol/machine.py:intake_decision": 56,
     "services/followups.py:_requests_for_intent": 52,
     "services/screening.py:judge_cadence": 52,
 }
