@@ -51,6 +51,7 @@ from .prediction import (
 from .visibility import (
     VisibilityWindow,
     altaz,
+    max_elevation_deg,
     next_windows,
     sun_separation_deg,
     visibility_windows,
@@ -72,6 +73,7 @@ __all__ = [
     "TrackRequest",
     "VisibilityWindow",
     "altaz",
+    "max_elevation_deg",
     "barycentric_drift_hz_s",
     "barycentric_frequency_hz",
     "barycentric_gap_s",

@@ -20,7 +20,8 @@ f0 at t0, with D the largest plausible drift (``ProtocolModel.off_source_max_abs
 since a signal that leaks in away from the target need not follow the sky-fixed track. Any hit
 there, at any drift, is the scan's ``nearby`` hit when none is on the track.
 
-Partner reports are matched the same way at their own instant (``ReportFact.unix_s``).
+Partner reports are matched the same way at their own instant (``ReportFact.unix_s +
+ReportFact.time_offset_s``, the report's time stamp plus its offset).
 
 The search window of a scan is the band the track plus tolerance sweeps during the scan
 (widened as above away from the target); a scan "covers" the prediction when it is complete and its
@@ -485,11 +486,16 @@ def _scan_match(
 
 
 def _report_detection(report: ReportFact) -> tuple[DetectionFact, ...]:
-    """A partner's sighting as a pseudo-detection at the report's own instant (offset 0)."""
+    """A partner's sighting as a pseudo-detection at the report's own instant: its time stamp
+    plus ``time_offset_s``, as a hit's instant is its scan start plus its offset."""
     if not report.detected or report.frequency_hz is None:
         return ()
     drift = 0.0 if report.drift_hz_s is None else report.drift_hz_s
-    return (DetectionFact(-report.id, -report.id, report.frequency_hz, drift, 0.0, 0.0),)
+    return (
+        DetectionFact(
+            -report.id, -report.id, report.frequency_hz, drift, 0.0, report.time_offset_s
+        ),
+    )
 
 
 def _candidate_items(facts: CandidateFacts) -> list[_Item]:
@@ -673,6 +679,31 @@ def search_windows_hz(
         [items],
     )
     return {o.id: (batch.low_hz[i], batch.high_hz[i]) for i, o in enumerate(observations)}
+
+
+def report_views(
+    protocol: Any,
+    reference_detection: DetectionFact,
+    reference_observation: ObservationFact,
+    target: TargetFact,
+    reports: Sequence[ReportFact],
+    physics_context: PhysicsContext | None = None,
+) -> list[ReportView]:
+    """Reports judged against the candidate's track, each at its own instant (time stamp plus
+    offset), as the checks judge them; for a report on its own, e.g. on receipt."""
+    if not reports:
+        return []
+    context = physics_context or default_physics_context()
+    width = reference_observation.channel_width_hz
+    items = [_Item(r.site, r.unix_s, r.duration_s, width, _report_detection(r)) for r in reports]
+    batch = _predict_items(
+        context,
+        _protocol_model(protocol),
+        [(reference_detection, reference_observation, target)],
+        [items],
+    )
+    reference = batch.references[0]
+    return [_report_view(batch, i, r, reference) for i, r in enumerate(reports)]
 
 
 def search_window_hz(

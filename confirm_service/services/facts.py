@@ -44,7 +44,9 @@ MAX_SCAN = timedelta(hours=6)
 
 
 def site_fact(site: Site) -> SiteFact:
-    return SiteFact(site.code, site.latitude_deg, site.longitude_deg, site.elevation_m)
+    return SiteFact(
+        site.code, site.latitude_deg, site.longitude_deg, site.elevation_m, site.min_elevation_deg
+    )
 
 
 def target_fact(target: Target) -> TargetFact:
@@ -91,6 +93,8 @@ def observation_fact(
         cadence=observation.cadence,
         complete=observation.completed_at is not None,
         detections=tuple(detections),
+        sefd_jy=observation.sefd_jy,
+        threshold_snr=observation.threshold_snr,
     )
 
 
@@ -113,6 +117,9 @@ _SCAN_COLUMNS = (
     Observation.beam,
     Observation.cadence,
     Observation.completed_at,
+    Site.min_elevation_deg,
+    Observation.sefd_jy,
+    Observation.threshold_snr,
 )
 
 
@@ -127,7 +134,7 @@ def _scan_query():  # type: ignore[no-untyped-def]
 def _scan_fact(row: Any) -> ObservationFact:
     return ObservationFact(
         id=row[0],
-        site=SiteFact(row[1], row[2], row[3], row[4]),
+        site=SiteFact(row[1], row[2], row[3], row[4], row[18]),
         target_name=row[5],
         pointing_ra_deg=row[6],
         pointing_dec_deg=row[7],
@@ -141,6 +148,8 @@ def _scan_fact(row: Any) -> ObservationFact:
         beam=row[15],
         cadence=row[16],
         complete=row[17] is not None,
+        sefd_jy=row[19],
+        threshold_snr=row[20],
     )
 
 
@@ -247,23 +256,26 @@ def report_facts(session: Session, candidate_id: int) -> tuple[ReportFact, ...]:
         )
         .order_by(FollowUpReport.id)
     ).all()
-    return tuple(
-        ReportFact(
-            id=report.id,
-            site=site_fact(site),
-            unix_s=report.observed_at.timestamp(),
-            detected=report.detected,
-            frequency_hz=report.frequency_hz,
-            drift_hz_s=report.drift_hz_s,
-            frequency_min_hz=report.frequency_min_hz,
-            frequency_max_hz=report.frequency_max_hz,
-            duration_s=report.duration_s,
-            threshold_snr=report.threshold_snr,
-            sefd_jy=report.sefd_jy,
-            pointing_ra_deg=report.pointing_ra_deg,
-            pointing_dec_deg=report.pointing_dec_deg,
-        )
-        for report, site in rows
+    return tuple(report_fact(report, site) for report, site in rows)
+
+
+def report_fact(report: FollowUpReport, site: Site) -> ReportFact:
+    """A stored report as the protocol sees it."""
+    return ReportFact(
+        id=report.id,
+        site=site_fact(site),
+        unix_s=report.observed_at.timestamp(),
+        detected=report.detected,
+        frequency_hz=report.frequency_hz,
+        drift_hz_s=report.drift_hz_s,
+        frequency_min_hz=report.frequency_min_hz,
+        frequency_max_hz=report.frequency_max_hz,
+        duration_s=report.duration_s,
+        threshold_snr=report.threshold_snr,
+        sefd_jy=report.sefd_jy,
+        pointing_ra_deg=report.pointing_ra_deg,
+        pointing_dec_deg=report.pointing_dec_deg,
+        time_offset_s=report.time_offset_s or 0.0,
     )
 
 

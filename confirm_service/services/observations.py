@@ -224,6 +224,8 @@ def create_observation(
         beam=data.beam,
         cadence=data.cadence,
         pipeline_run=data.pipeline_run,
+        sefd_jy=data.sefd_jy,
+        threshold_snr=data.threshold_snr,
         detection_count=0,
     )
     observation.site = site
