@@ -70,7 +70,10 @@ def list_candidates(**filters: object) -> None:
 @candidates_group.command("show")
 @click.argument("candidate_id", type=int)
 def show(candidate_id: int) -> None:
-    """Everything about one candidate: checks with measured and expected values, history."""
+    """Everything about one candidate: checks with measured and expected values, history.
+
+    A read: the caution is shown where a decision is made (reopen, retract, the decision screen,
+    the dossier), not here."""
     database = open_database()
     with database.read() as session:
         c = views.detail(session, candidate_id)
@@ -115,8 +118,6 @@ def show(candidate_id: int) -> None:
             f"  sign-off {s.stage}: {s.person} ({s.role}) "
             f"{'approves' if s.approve else 'objects'}: {s.rationale}"
         )
-    click.echo("")
-    click.echo("CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION)
 
 
 def _reopen_command(verb: str, candidate_id: int, rationale: str) -> None:
