@@ -25,6 +25,7 @@ LONGER: dict[str, int] = {
     "protocol/checks/reobservation.py:evaluate": 77,
     "followup/content.py:_window_entry": 72,
     "services/predictions.py:compute_prediction": 58,
+    "demo.py:run_demo": 54,
     "services/followups.py:record_report": 70,
     "protocol/checks/on_off_cadence.py:evaluate": 66,
     "synthetic.py:make_cadence": 64,

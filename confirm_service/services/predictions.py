@@ -13,7 +13,7 @@ from contextlib import contextmanager
 from datetime import datetime, timedelta
 from typing import TYPE_CHECKING, Any
 
-from confirm_service.cautions import NOT_A_DETECTION, SITE_SAFETY
+from confirm_service.cautions import SITE_SAFETY
 from confirm_service.physics import (
     MODEL_DESCRIPTION,
     PhysicsInputError,
@@ -43,10 +43,6 @@ if TYPE_CHECKING:
 
 __all__ = ["compute_prediction", "compute_visibility"]
 
-CAUTION = (
-    "A signal found where predicted supports the hypothesis of a sky-fixed transmitter; it is "
-    f"not a detection. {NOT_A_DETECTION}"
-)
 VISIBILITY_CAUTION = f"Geometry only (no refraction). {SITE_SAFETY}"
 MAX_VISIBILITY_DAYS = 400.0
 
@@ -176,7 +172,7 @@ def _at_detection(
         barycentric_frequency_hz=float(barycentric_frequency_hz(frequency_hz, velocity)),
         residual_drift_hz_s=None if drift_hz_s is None else drift_hz_s - earth,
         ephemeris=_ephemeris_name(),
-        notes=[CAUTION],
+        notes=[],
     )
 
 
@@ -237,8 +233,8 @@ def _destination(
 
 
 def _prediction_notes(no_drift: bool, fixed_uncertainty: bool) -> list[str]:
-    """The caution, and what the prediction assumed for values not given."""
-    notes = [CAUTION]
+    """What the prediction assumed for values not given."""
+    notes: list[str] = []
     if no_drift:
         notes.append("No drift given: residual drift taken as 0 (constant barycentric frequency).")
     if fixed_uncertainty:
