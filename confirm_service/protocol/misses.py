@@ -220,12 +220,17 @@ class Misses:
 
     def summary(self) -> str:
         """A clause for a check's reason about the looks that did not count."""
-        skipped = len(self.not_constraining)
+        skipped = [j for j in self.judgements if not j.constraining]
         if not skipped:
             return ""
+        hidden = sum(1 for j in skipped if j.reasons[0].startswith(BELOW_HORIZON))
+        faint = len(skipped) - hidden
+        parts = [f"{hidden} with the target below the site's horizon limit"] if hidden else []
+        if faint:
+            parts.append(f"{faint} where the expected SNR was below the look's threshold")
         return (
-            f" {skipped} look(s) that saw nothing do not count: the target was below the "
-            "horizon or the look was not sensitive enough (see details)."
+            f" {len(skipped)} look(s) that saw nothing do not count ({', '.join(parts)}; "
+            "numbers in the details)."
         )
 
 

@@ -156,6 +156,7 @@ def test_looks_too_insensitive_for_the_signal_are_not_misses(
         "independent_site", replace(facts, reports=weak), default_protocol, physics_context, **SITE
     )
     assert result.outcome == "pending" and result.details["missed"] == []
+    assert "2 where the expected SNR was below the look's threshold" in result.reason
     for record in result.details["not_constraining"]:
         assert record["reasons"][0].startswith("below_threshold")
         assert record["expected_snr"] == pytest.approx(expected, abs=0.01)
