@@ -191,55 +191,59 @@ def related_scans(
     return direct + overlapping
 
 
-CLUSTER_GAP_HZ = 200_000.0
-"""Windows closer than this share one range query (observation_id IN (...) AND frequency)."""
-
-
-def _clusters(windows: dict[int, tuple[float, float]]) -> list[tuple[float, float, list[int]]]:
-    """Windows merged into frequency clusters: (low, high, observation ids)."""
-    clusters: list[tuple[float, float, list[int]]] = []
-    for observation_id, (low, high) in sorted(windows.items(), key=lambda item: item[1][0]):
-        if clusters and low - clusters[-1][1] <= CLUSTER_GAP_HZ:
-            c_low, c_high, ids = clusters[-1]
-            clusters[-1] = (c_low, max(c_high, high), [*ids, observation_id])
-        else:
-            clusters.append((low, high, [observation_id]))
-    return clusters
-
-
-_DETECTION_COLUMNS = (
-    Detection.id,
-    Detection.observation_id,
-    Detection.frequency_hz,
-    Detection.drift_hz_s,
-    Detection.snr,
-    Detection.time_offset_s,
-    Detection.bandwidth_hz,
-    Detection.beam,
+_WINDOW_QUERY = (
+    "WITH w(observation_id, low_hz, high_hz) AS (VALUES {rows}) "
+    "SELECT d.id, d.observation_id, d.frequency_hz, d.drift_hz_s, d.snr, d.time_offset_s, "
+    "d.bandwidth_hz, d.beam FROM w CROSS JOIN detections d "
+    "WHERE d.observation_id = w.observation_id AND d.frequency_hz BETWEEN w.low_hz AND w.high_hz "
+    "ORDER BY d.id"
 )
+"""One statement for many windows: each (scan, band) row of ``w`` is one range scan of the
+(observation_id, frequency_hz) index. ``CROSS JOIN`` keeps SQLite's loop over ``w`` outermost;
+PostgreSQL plans the join itself."""
+
+
+WINDOWS_PER_STATEMENT = 1_000
+"""Windows per statement: three parameters each, well inside SQLite's 32,766."""
+
+
+def window_statement(count: int, dialect: str) -> str:
+    """The window query for ``count`` windows, with the driver's parameter markers."""
+    marker = "%s" if dialect == "postgresql" else "?"
+    if dialect == "postgresql":  # the first row types the VALUES columns
+        first = f"(CAST({marker} AS integer), CAST({marker} AS double precision), " + (
+            f"CAST({marker} AS double precision))"
+        )
+    else:
+        first = f"({marker}, {marker}, {marker})"
+    rows = ", ".join([first] + [f"({marker}, {marker}, {marker})"] * (count - 1))
+    return _WINDOW_QUERY.format(rows=rows)
 
 
 def detections_in_windows(
     session: Session, windows: dict[int, tuple[float, float]]
 ) -> dict[int, list[DetectionFact]]:
-    """The detections of each scan inside its frequency window, by the frequency index.
+    """The detections of each scan inside its frequency window (Hz), by the frequency index.
 
-    One indexed range query per cluster of nearby windows; rows are then kept only if they lie
-    inside their own scan's window.
+    One statement per thousand windows, read straight off the DB-API cursor into facts, in id
+    order: only the rows inside their own scan's window leave the database.
     """
     found: dict[int, list[DetectionFact]] = {observation_id: [] for observation_id in windows}
-    for low, high, ids in _clusters(windows):
-        rows = session.execute(
-            select(*_DETECTION_COLUMNS).where(
-                Detection.observation_id.in_(ids), Detection.frequency_hz.between(low, high)
-            )
+    if not windows:
+        return found
+    connection = session.connection()
+    items = list(windows.items())
+    for first in range(0, len(items), WINDOWS_PER_STATEMENT):
+        chunk = items[first : first + WINDOWS_PER_STATEMENT]
+        statement = window_statement(len(chunk), connection.dialect.name)
+        parameters = tuple(
+            value
+            for observation_id, (low, high) in chunk
+            for value in (observation_id, float(low), float(high))
         )
-        for row in rows:
-            w_low, w_high = windows[row.observation_id]
-            if w_low <= row.frequency_hz <= w_high:
-                found[row.observation_id].append(DetectionFact(*row))
-    for rows in found.values():
-        rows.sort(key=lambda d: d.id)
+        cursor = connection.exec_driver_sql(statement, parameters)
+        for row in cursor.cursor.fetchall():
+            found[row[1]].append(DetectionFact(*row))
     return found
 
 
