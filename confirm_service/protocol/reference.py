@@ -254,6 +254,16 @@ def default_physics_context() -> PhysicsContext:
     return context
 
 
+def measurement_uncertainty(
+    protocol: ProtocolLike | None, channel_width_hz: float, duration_s: float
+) -> tuple[float, float]:
+    """1-sigma (frequency Hz, drift Hz/s) of a hit measured with ``channel_width_hz`` channels
+    over a ``duration_s`` scan: the protocol's [matching] numbers of channels and of drift
+    resolutions (channel width / duration)."""
+    frequency_channels, drift_resolutions = _uncertainty_scales(protocol)
+    return frequency_channels * channel_width_hz, drift_resolutions * channel_width_hz / duration_s
+
+
 def _uncertainty_scales(protocol: ProtocolLike | None) -> tuple[float, float]:
     if protocol is None:
         return DEFAULT_FREQUENCY_UNCERTAINTY_CHANNELS, DEFAULT_DRIFT_UNCERTAINTY_RESOLUTIONS
