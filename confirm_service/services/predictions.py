@@ -18,6 +18,7 @@ from confirm_service.physics import (
     MODEL_DESCRIPTION,
     PhysicsInputError,
     SignalMeasurement,
+    VisibilityWindow,
     barycentric_frequency_hz,
     current_ephemeris,
     drift_from_acceleration_hz_s,
@@ -36,7 +37,7 @@ from confirm_service.schemas.predictions import (
     VisibilityWindowResult,
 )
 
-__all__ = ["compute_prediction", "compute_visibility"]
+__all__ = ["compute_prediction", "compute_visibility", "window_result"]
 
 CAUTION = (
     "A signal found where predicted supports the hypothesis of a sky-fixed transmitter; it is "
@@ -215,6 +216,18 @@ def _with_prediction(
     )
 
 
+def window_result(window: VisibilityWindow) -> VisibilityWindowResult:
+    """One physics window as it is answered (times UTC, duration in s, elevation in deg)."""
+    return VisibilityWindowResult(
+        start=window.start,
+        end=window.end,
+        duration_s=window.duration_s,
+        max_elevation_deg=window.max_elevation_deg,
+        starts_at_search_start=window.starts_at_search_start,
+        ends_at_search_end=window.ends_at_search_end,
+    )
+
+
 def compute_visibility(
     site_lat_deg: float,
     site_lon_deg: float,
@@ -264,16 +277,6 @@ def compute_visibility(
         min_elevation_deg=min_elevation,
         sun_avoidance_deg=sun_avoidance,
         step_s=step,
-        windows=[
-            VisibilityWindowResult(
-                start=w.start,
-                end=w.end,
-                duration_s=w.duration_s,
-                max_elevation_deg=w.max_elevation_deg,
-                starts_at_search_start=w.starts_at_search_start,
-                ends_at_search_end=w.ends_at_search_end,
-            )
-            for w in windows
-        ],
+        windows=[window_result(w) for w in windows],
         notes=[VISIBILITY_CAUTION],
     )
