@@ -14,6 +14,7 @@ from typing import Any
 from sqlalchemy import and_, event, func, or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service import metrics
 from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import NotFound
@@ -302,6 +303,8 @@ def reevaluate(
     _apply_state(candidate, evaluation)
     if transitioned:
         take_decision_checkpoint(session, candidate, f"candidate {candidate.id} transition")
+    outcome = "transitioned" if transitioned else "unchanged"
+    metrics.count_on_commit(session, metrics.EVALUATIONS, outcome=outcome)
     return evaluation
 
 
