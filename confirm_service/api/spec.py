@@ -77,6 +77,23 @@ def _query_parameters(model: type[BaseModel]) -> list[dict[str, Any]]:
     ]
 
 
+def _statuses_any_request_may_get(rule: str, op: Operation, has_path_parameters: bool) -> set[int]:
+    """Refusals that follow from the shape of an operation rather than from its logic: no
+    token (401), an id that names nothing or is not an id (404), a body that is too large, not
+    JSON or invalid (413, 415, 422), a query that is invalid (422), and a database that does not
+    answer (503, with ``Retry-After``)."""
+    statuses = {503}
+    if rule.startswith("/api/"):
+        statuses.add(401)
+    if has_path_parameters:
+        statuses.add(404)
+    if op.request is not None:
+        statuses |= {413, 415, 422}
+    if op.query is not None:
+        statuses.add(422)
+    return statuses
+
+
 def build_openapi(app: Flask, version: str) -> dict[str, Any]:
     definitions: dict[str, Any] = {}
     problem_ref = _schema_of(Problem, definitions)
@@ -121,7 +138,10 @@ def build_openapi(app: Flask, version: str) -> dict[str, Any]:
                     "application/json": {"schema": _schema_of(op.response, definitions)}
                 }
             responses[str(op.status)] = ok
-            for status in op.error_statuses:
+            for status in sorted(
+                set(op.error_statuses)
+                | _statuses_any_request_may_get(rule.rule, op, bool(path_parameters))
+            ):
                 responses[str(status)] = {
                     "description": "problem details (RFC 9457)",
                     "content": {"application/problem+json": {"schema": problem_ref}},
