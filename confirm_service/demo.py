@@ -499,7 +499,9 @@ def _write_and_check_dossier(app: Any, result: DemoResult) -> None:
 
     db = app.extensions["confirm.db"]
     settings = app.extensions["confirm.settings"]
-    best = max(result.candidates, key=lambda c: (c["state"] == "confirmed", len(c["history"])))
+    best = max(
+        result.candidates, key=lambda c: (c["state"] == "passed_protocol", len(c["history"]))
+    )
     with db.write() as session:
         document = build_dossier(session, settings, best["id"])
     result.dossier = result.folder / f"dossier-{best['id']}"
@@ -533,7 +535,7 @@ def summary_lines(result: DemoResult) -> list[str]:
     for candidate in result.candidates:
         lines.append("")
         lines.append(
-            f"candidate {candidate['id']}: {candidate['state'].upper()} at stage "
+            f"candidate {candidate['id']}: {candidate['state'].replace('_', ' ').upper()} at stage "
             f"{candidate['stage']!r}  (f_bary {candidate['barycentric_frequency_hz']:,.3f} Hz, "
             f"residual drift {candidate['residual_drift_hz_s']:+.5f} Hz/s)"
         )

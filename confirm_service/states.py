@@ -12,7 +12,7 @@ from enum import StrEnum
 class CandidateState(StrEnum):
     OPEN = "open"
     REJECTED = "rejected"
-    CONFIRMED = "confirmed"
+    PASSED_PROTOCOL = "passed_protocol"
     WITHDRAWN = "withdrawn"
 
 

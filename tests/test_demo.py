@@ -17,7 +17,7 @@ def test_demo_runs_the_whole_service(tmp_path):
     assert out.count("off_source_scan 4") == 3 and out.count("linked 1") == 2
     assert "reported on request" in out  # the partner site answers the follow-up request
     assert out.count("REJECTED at stage 'screening'") == 1  # the hit the pipeline flagged itself
-    assert "CONFIRMED at stage 'review'" in out
+    assert "PASSED PROTOCOL at stage 'review'" in out
     # the navigation-band carrier the pipeline flagged shows off-source too (default.toml flags
     # listed bands for a person rather than dropping them)
     assert "on_off_cadence failed" in out

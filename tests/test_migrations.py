@@ -59,3 +59,60 @@ def test_downgrade_to_base_then_upgrade_again(database_url):
             assert compare_metadata(context, Base.metadata) == []
     finally:
         engine.dispose()
+
+
+def _insert_without_references(database_url: str, statements: list[str]) -> None:
+    """Rows whose referenced rows do not matter here: foreign keys off for this transaction."""
+    from sqlalchemy import create_engine, text
+
+    engine = create_engine(database_url)  # no SQLite pragma: foreign keys are not enforced
+    try:
+        with engine.begin() as connection:
+            if engine.dialect.name == "postgresql":
+                connection.execute(text("SET LOCAL session_replication_role = replica"))
+            for statement in statements:
+                connection.execute(text(statement))
+    finally:
+        engine.dispose()
+
+
+def test_final_state_is_renamed_passed_protocol_and_back(database_url):
+    # 0007 renames the stored final state "confirmed" (read in the trade as a verified real
+    # signal) to "passed_protocol" in candidates and their history; its downgrade restores it.
+    from alembic import command
+    from sqlalchemy import text
+
+    config = alembic_config(database_url)
+    command.downgrade(config, "0006")
+    now = "'2026-12-02 12:00:00+00:00'"
+    _insert_without_references(
+        database_url,
+        [
+            "INSERT INTO candidates (id, reference_detection_id, site_id, protocol_name, "
+            "protocol_sha256, bands_sha256, state, stage, stage_entered_at, held, "
+            "hold_released, origin, reference_unix_s, barycentric_frequency_hz, "
+            "residual_drift_hz_s, evaluation_count, created_at, updated_at) VALUES "
+            f"(1, 1, 1, 'p', 'x', '', 'confirmed', 'review', {now}, false, false, 'intake', "
+            f"0, 1.0, 0.0, 1, {now}, {now}), "
+            f"(2, 2, 1, 'p', 'x', '', 'open', 'review', {now}, false, false, 'intake', "
+            f"0, 1.0, 0.0, 1, {now}, {now})",
+            "INSERT INTO stage_transitions (id, candidate_id, from_stage, to_stage, from_state, "
+            f"to_state, reason, actor, at) VALUES (1, 1, 'review', 'review', 'open', "
+            f"'confirmed', 'passed', 'system', {now})",
+        ],
+    )
+    engine = make_engine(database_url)
+    states = text("SELECT state FROM candidates ORDER BY id")
+    history = text("SELECT from_state, to_state FROM stage_transitions")
+    try:
+        upgrade_database(database_url)
+        with engine.connect() as connection:
+            assert connection.execute(states).scalars().all() == ["passed_protocol", "open"]
+            assert connection.execute(history).one() == ("open", "passed_protocol")
+        command.downgrade(config, "0006")
+        with engine.connect() as connection:
+            assert connection.execute(states).scalars().all() == ["confirmed", "open"]
+            assert connection.execute(history).one() == ("open", "confirmed")
+        upgrade_database(database_url)
+    finally:
+        engine.dispose()

@@ -14,7 +14,7 @@ from confirm_service.timeutil import utc_now
 
 
 class Candidate(Base):
-    """A signal under confirmation; ``state`` is open, rejected, confirmed or withdrawn."""
+    """A signal under confirmation; ``state`` is open, rejected, passed_protocol or withdrawn."""
 
     __tablename__ = "candidates"
     __table_args__ = (

@@ -2,7 +2,7 @@
 
 Pure: no Flask, no SQLAlchemy, no confirm_service.models. Astronomy goes through
 confirm_service.physics. A candidate that passes every stage is still not a detection; see
-``machine`` for the cautions that go with a ``confirmed`` state.
+``machine`` for the cautions that go with a ``passed_protocol`` state.
 """
 
 from confirm_service.protocol.bands import (

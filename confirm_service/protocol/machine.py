@@ -17,15 +17,16 @@ Semantics (deterministic: "now" is ``facts.now_unix_s``; no clocks, no randomnes
 * The candidate leaves its stage when every check of the stage passed (or is not applicable,
   or is a released hold), it is not held, and each sign-off rule of ``protocol.signoffs`` is
   met. It then enters the next stage at ``now`` (its ``on_entry`` actions are emitted) and the
-  loop continues there; leaving the last stage makes it ``confirmed``.
+  loop continues there; leaving the last stage makes it ``passed_protocol``.
 * When a stage cannot be left and ``now >= entered + deadline_hours``: ``escalate`` emits an
   escalate action to the stage's contacts (its idempotency key is fixed per stage entry, so it
   is recorded once), ``expire`` rejects with reason class ``expired``. Deadlines apply to held
   candidates too.
-* ``rejected``, ``confirmed`` and ``withdrawn`` are final: checks are reported, nothing changes.
+* ``rejected``, ``passed_protocol`` and ``withdrawn`` are final: checks are reported, nothing
+  changes.
   ``withdrawn`` is only ever set by a person, never here.
 
-``confirmed`` means the candidate passed every stage of this protocol. It is not a detection:
+``passed_protocol`` means the candidate passed every stage of this protocol. It is not a detection:
 the people responsible examine it, and any public statement follows the institution's policy
 and the internationally agreed post-detection principles.
 """
@@ -39,8 +40,8 @@ from typing import Any
 from confirm_service.protocol.bands import BandSet, InterferenceBand, as_band_set
 from confirm_service.protocol.checks import get_check
 from confirm_service.protocol.facts import (
-    STATE_CONFIRMED,
     STATE_OPEN,
+    STATE_PASSED_PROTOCOL,
     STATE_REJECTED,
     TERMINAL_STATES,
     CandidateFacts,
@@ -222,13 +223,13 @@ def _advance(run: _Run, stage_index: int) -> Evaluation:
         held, hold_reason = _hold(results, statuses, facts.manual_hold_released)
         if not held and _stage_complete(results, stage.name, statuses, facts.manual_hold_released):
             if stage_index == len(model.stages) - 1:
-                state = STATE_CONFIRMED
+                state = STATE_PASSED_PROTOCOL
                 transitions.append(
                     Transition(
                         stage.name,
                         stage.name,
                         STATE_OPEN,
-                        STATE_CONFIRMED,
+                        STATE_PASSED_PROTOCOL,
                         "passed every stage of the protocol",
                         None,
                         now,

@@ -121,7 +121,7 @@ class SignoffStatus:
 class Evaluation:
     """What the protocol concludes about one candidate from its facts.
 
-    A candidate in state ``confirmed`` passed every stage of the protocol. That is not a
+    A candidate in state ``passed_protocol`` passed every stage of the protocol. That is not a
     detection: it is a candidate for the people responsible to examine, and any public
     statement follows the institution's policy and the internationally agreed post-detection
     principles.

@@ -10,6 +10,7 @@ from confirm_service.schemas.bounds import RowId
 from confirm_service.schemas.common import StrictModel, UtcIso
 from confirm_service.schemas.followups import ReportIn as ReportIn  # the report contract
 from confirm_service.schemas.followups import ReportOut as ReportOut  # lives with follow-ups
+from confirm_service.states import CandidateState
 
 Text = Annotated[str, Field(min_length=1, max_length=10_000)]
 
@@ -50,8 +51,8 @@ class TransitionOut(BaseModel):
 
     from_stage: str | None
     to_stage: str
-    from_state: str | None
-    to_state: str
+    from_state: CandidateState | None
+    to_state: CandidateState
     reason: str
     reason_class: str | None
     actor: str
@@ -94,7 +95,7 @@ class FollowUpOut(BaseModel):
 
 class CandidateSummary(BaseModel):
     id: int
-    state: str
+    state: CandidateState
     stage: str
     protocol: ProtocolRef
     target: str | None

@@ -37,6 +37,7 @@ from confirm_service.schemas.candidates import (
     TransitionOut,
 )
 from confirm_service.schemas.queries import CandidateQuery
+from confirm_service.states import CandidateState
 
 
 def latest_checks_subquery():
@@ -144,7 +145,7 @@ def summary(session: Session, candidate: Candidate) -> CandidateSummary:
     target = session.get(Target, candidate.target_id) if candidate.target_id else None
     return CandidateSummary(
         id=candidate.id,
-        state=candidate.state,
+        state=CandidateState(candidate.state),
         stage=candidate.stage,
         protocol=ProtocolRef(name=candidate.protocol_name, sha256=candidate.protocol_sha256),
         target=target.name if target else None,

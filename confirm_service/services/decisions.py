@@ -38,8 +38,8 @@ def decide(
 ) -> Candidate:
     """A person's final decision (``rejected`` or ``withdrawn``) with its rationale.
 
-    ``confirmed`` is never set by hand: it is reached only by passing the protocol's last stage
-    with its sign-offs. The decision is pinned to a signed audit checkpoint.
+    ``passed_protocol`` is never set by hand: it is reached only by passing the protocol's last
+    stage with its sign-offs. The decision is pinned to a signed audit checkpoint.
     """
     if decision not in ("rejected", "withdrawn"):
         raise Invalid(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import re
 
 import pytest
@@ -143,3 +144,15 @@ def test_openapi_document_lists_every_route(client, app, auth):
                     ref = content["schema"].get("$ref")
                     if ref:
                         assert ref.rsplit("/", 1)[-1] in document["components"]["schemas"], path
+
+
+def test_openapi_document_names_the_candidate_states(client, auth):
+    # The final state of a candidate that passed its protocol is "passed_protocol": in this trade
+    # "confirmed" reads as a verified real signal (common practice, no source).
+    document = client.get("/api/v1/openapi.json", headers=auth("viewer")).get_json()
+    schemas = document["components"]["schemas"]
+    states = schemas["CandidateState"]["enum"]
+    assert states == ["open", "rejected", "passed_protocol", "withdrawn"]
+    state = schemas["CandidateSummary"]["properties"]["state"]
+    assert state == {"$ref": "#/components/schemas/CandidateState"}
+    assert "confirmed" not in json.dumps(document)

@@ -33,7 +33,7 @@ def outcome_label(evaluation: Evaluation, expected: str = "") -> str:
         ]
         return expected if expected in holding else holding[0]
     automatic_done = all(r.outcome in (PASS, NOT_APPLICABLE) for r in evaluation.results)
-    if evaluation.state in ("open", "confirmed") and automatic_done:
+    if evaluation.state in ("open", "passed_protocol") and automatic_done:
         return "advanced"
     return "stuck"
 

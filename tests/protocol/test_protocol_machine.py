@@ -59,9 +59,9 @@ def test_two_distinct_coordinators_confirm(default_protocol, review_facts, physi
         review_facts, signoffs=(signoff("ana", entered + 60), signoff("bo", entered + 120))
     )
     evaluation = evaluate(default_protocol, facts, physics_context=physics_context)
-    assert evaluation.state == "confirmed"
+    assert evaluation.state == "passed_protocol"
     assert evaluation.stage == "review"
-    assert evaluation.transitions[-1].to_state == "confirmed"
+    assert evaluation.transitions[-1].to_state == "passed_protocol"
     assert evaluation.signoffs[0].approved_by == ("ana", "bo")
 
 
@@ -213,7 +213,7 @@ def test_new_data_still_rejects_a_candidate_in_a_later_stage(
     assert evaluation.stage == "review"
 
 
-@pytest.mark.parametrize("state", ["rejected", "withdrawn", "confirmed"])
+@pytest.mark.parametrize("state", ["rejected", "withdrawn", "passed_protocol"])
 def test_final_states_do_not_change(default_protocol, sky_fixed, physics_context, state):
     facts = replace(sky_fixed.facts, state=state)
     evaluation = evaluate(default_protocol, facts, physics_context=physics_context)
@@ -265,6 +265,6 @@ on_entry = [{ action = "notify", contacts = ["someone"] }]
     evaluation = evaluate(
         protocol, replace(sky_fixed.facts, stage="first"), physics_context=physics_context
     )
-    assert evaluation.state == "confirmed" and evaluation.stage == "last"
+    assert evaluation.state == "passed_protocol" and evaluation.stage == "last"
     assert [a.kind for a in evaluation.actions] == ["notify"]
     assert stage_entry_actions(protocol, "first", 7, 0.0) == ()

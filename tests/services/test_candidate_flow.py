@@ -106,7 +106,7 @@ def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
         reevaluate(session, SYSTEM, session.get(Candidate, sky["id"]))
     assert (count(db, CheckResult), count(db, AuditEntry)) == (results, entries)
 
-    # two distinct coordinators sign off the review stage: confirmed, pinned to a checkpoint
+    # two distinct coordinators sign off the review stage: passed_protocol, pinned to a checkpoint
     with db.write() as session:
         _, second = create_token(session, SYSTEM, "coordinator-two", "coordinator")
     url = f"/api/v1/candidates/{sky['id']}/signoffs"
@@ -124,7 +124,7 @@ def test_pipeline_alone_forms_checks_and_advances_candidates(client, auth, db):
     )
     assert done.status_code == 201
     final = client.get(f"/api/v1/candidates/{sky['id']}", headers=auth("viewer")).get_json()
-    assert final["state"] == "confirmed"
+    assert final["state"] == "passed_protocol"
     assert final["decision_checkpoint_size"] is not None
     assert "not a detection" in final["caution"]
     entries = count(db, AuditEntry)
@@ -161,13 +161,13 @@ def test_fifty_concurrent_signoffs_advance_the_stage_once(app, client, auth, db)
         thread.join()
     # the stage needs 2 approvals: exactly 2 are accepted, the rest find it decided (409)
     assert sorted(statuses) == [201, 201] + [409] * 48
-    confirmed = count(
+    passed = count(
         db,
         StageTransition,
         StageTransition.candidate_id == sky["id"],
-        StageTransition.to_state == "confirmed",
+        StageTransition.to_state == "passed_protocol",
     )
-    assert confirmed == 1
+    assert passed == 1
 
 
 def test_people_promote_comment_and_withdraw(client, auth, db):

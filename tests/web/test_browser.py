@@ -99,11 +99,14 @@ def test_two_coordinators_confirm_a_candidate_in_a_real_browser(
             page.goto(f"{served}/dashboard/candidates/{review['id']}")
             _sign_off(page)
             heading = page.get_by_role("heading", level=1)
-            assert " ".join(heading.inner_text().split()) == f"Candidate {review['id']} confirmed"
+            assert (
+                " ".join(heading.inner_text().split())
+                == f"Candidate {review['id']} passed protocol"
+            )
             assert page.locator("form#signoff").count() == 0
             second.close()
         finally:
             browser.close()
     assert foreign == []
     final = client.get(f"/api/v1/candidates/{review['id']}", headers=auth("viewer")).get_json()
-    assert final["state"] == "confirmed"
+    assert final["state"] == "passed_protocol"

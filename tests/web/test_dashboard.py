@@ -240,7 +240,7 @@ def test_the_list_counts_filters_and_links_like_the_api(app, client, auth, token
     text = page_text(listing)
     for state, number in states.items():
         assert f"{state} {number}" in text
-    assert "confirmed 0" in text and "all 2" in text
+    assert "passed protocol 0" in text and "all 2" in text
     assert CANDIDATE_IS_NOT_A_DETECTION in text
 
     rejected = viewer.get("/dashboard?state=rejected").get_data(as_text=True)
@@ -329,11 +329,11 @@ def test_two_coordinators_sign_off_through_the_forms_and_confirm(app, client, au
     )
     assert response.status_code == 302
     final = page_text(second.get(url))
-    assert "Candidate " + str(review["id"]) + " confirmed" in final
+    assert "Candidate " + str(review["id"]) + " passed protocol" in final
     assert CANDIDATE_IS_NOT_A_DETECTION in final
     assert "no further sign-off or decision can be recorded" in final
     api = client.get(f"/api/v1/candidates/{review['id']}", headers=auth("viewer")).get_json()
-    assert api["state"] == "confirmed"
+    assert api["state"] == "passed_protocol"
     assert [s["person"] for s in api["signoffs"]] == ["test-coordinator", "coordinator-two"]
     assert all(s["rationale"] == RATIONALE and s["approve"] for s in api["signoffs"])
 

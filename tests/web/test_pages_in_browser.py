@@ -137,10 +137,10 @@ def test_a_coordinators_day_in_a_real_browser(sync_playwright, served, client, a
             form.get_by_label("Rationale").fill(RATIONALE)
             form.get_by_role("button", name="Record my sign-off").click()
             heading = " ".join(page.get_by_role("heading", level=1).inner_text().split())
-            assert heading == f"Candidate {review['id']} confirmed"
+            assert heading == f"Candidate {review['id']} passed protocol"
             history = page.locator("#history tbody tr").last.inner_text()
-            assert "open → confirmed" in history  # the stage's end is in the history
-            page.screenshot(path=str(artefacts / "confirmed-phone.png"), full_page=True)
+            assert "open → passed protocol" in history  # the stage's end is in the history
+            page.screenshot(path=str(artefacts / "passed-protocol-phone.png"), full_page=True)
             context.close()
 
             # a viewer reads the candidate but is refused the sign-off form and the action
