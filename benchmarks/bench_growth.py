@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import os
 import statistics
 import sys
 import tempfile
@@ -229,6 +230,7 @@ def run(name: str, url: str, sizes: list[int], repeat: int) -> None:
                 f"  {size:>12,} {load_s:>7.1f}  {route:<28} "
                 f"{p50:>7.2f} {p99:>7.2f} {p99 / baseline[route]:>9.2f}"
             )
+    print("  load average (1, 5, 15 min): " + ", ".join(f"{x:.1f}" for x in os.getloadavg()))
     for route, paths in routes.items():
         print(f"  query plans of {route} at {sizes[-1]:,} hits (statements reading detections):")
         for line in service.plans(paths[0]):

@@ -158,11 +158,22 @@ class Recorder:
         return status, data
 
 
+def visible_target(site: dict, night: datetime, first: int) -> tuple[dict, datetime]:
+    """The first target from ``first`` on (in turn) with a window at ``site`` that night."""
+    for k in range(len(TARGETS)):
+        target = TARGETS[(first + k) % len(TARGETS)]
+        try:
+            return target, first_window(site, target, night, 6 * 260)
+        except RuntimeError:
+            continue
+    raise RuntimeError(f"no target visible from {site['code']}")
+
+
 def encoded_cadences(pipeline: int, count: int, hits_per_scan: int) -> list[list[tuple]]:
     """``count`` cadences of pipeline ``pipeline``: per scan its body and its batch bodies."""
-    site, target = SITES[pipeline % len(SITES)], TARGETS[pipeline % len(TARGETS)]
+    site = SITES[pipeline % len(SITES)]
     night = datetime(2026, 11, 20, tzinfo=UTC) - timedelta(days=pipeline)
-    start = first_window(site, target, night, 6 * 260)
+    target, start = visible_target(site, night, pipeline)
     made = []
     for k in range(count):
         cadence = make_cadence(
@@ -260,6 +271,11 @@ def run(name: str, url: str, args: argparse.Namespace) -> None:
         server.wait(timeout=60)
     log_text = (folder / "gunicorn.log").read_text(errors="replace")
     total = sum(len(v) for v in recorder.latency_s.values())
+    print(
+        f"[{name}] load average of the machine at the end (1, 5, 15 min): "
+        + ", ".join(f"{x:.1f}" for x in os.getloadavg())
+        + f" on {os.cpu_count()} cores"
+    )
     print(
         f"[{name}] {elapsed:.0f} s, {args.workers} gunicorn workers, {args.pipelines} pipelines, "
         f"{args.readers} readers, {args.hits_per_scan} hits per scan"
