@@ -18,7 +18,7 @@ import time
 from datetime import UTC, datetime, timedelta
 
 import numpy as np
-from sqlalchemy import insert, select
+from sqlalchemy import func, insert, select
 
 from confirm_service.config import DEFAULT_PROTOCOL_FILE
 from confirm_service.db import Database, upgrade_database
@@ -114,7 +114,11 @@ def main() -> None:
     with db.write() as session:
         first = session.execute(select(Observation).order_by(Observation.id)).scalars().first()
         reference = (
-            session.execute(select(Detection).where(Detection.observation_id == first.id))
+            session.execute(  # mid-band, so that every scan's window lies inside the band
+                select(Detection)
+                .where(Detection.observation_id == first.id)
+                .order_by(func.abs(Detection.frequency_hz - 1.425e9))
+            )
             .scalars()
             .first()
         )
@@ -138,24 +142,30 @@ def main() -> None:
         session.flush()
         candidate_id = candidate.id
     context = physics_context()
-    timings, returned = [], 0
+    timings, cpu_timings, returned = [], [], 0
     for run in range(args.repeat + 1):
         with db.read() as session:
             candidate = session.get(Candidate, candidate_id)
-            began = time.perf_counter()
+            began, cpu_began = time.perf_counter(), time.process_time()
             facts = factbook.candidate_facts(
                 session, candidate, protocol, datetime.now(UTC).timestamp(), context
             )
             matched = match_detections(protocol, facts, context)
             elapsed = time.perf_counter() - began
+            cpu = time.process_time() - cpu_began
         returned = sum(len(o.detections) for o in facts.all_observations())
         if run:  # the first run builds the physics tracks for the pair; later ones reuse them
             timings.append(elapsed)
+            cpu_timings.append(cpu)
     print(f"scans examined             : {len(facts.all_observations())}")
     print(f"rows returned by the index : {returned:,} of {args.detections:,}")
     print(f"detections linked          : {sum(len(v) for v in matched.values())}")
     print(f"match time, median         : {statistics.median(timings) * 1000:8.1f} ms")
     print(f"match time, worst          : {max(timings) * 1000:8.1f} ms   (goal < 50 ms)")
+    print(
+        f"CPU time, median           : {statistics.median(cpu_timings) * 1000:8.1f} ms   "
+        "(less sensitive to other processes on a shared machine)"
+    )
 
 
 if __name__ == "__main__":

@@ -13,7 +13,8 @@ Request bodies are serialised before timing: the pipeline's own JSON encoding is
 Printed in the same run:
 - end to end: hits per second from the first registration to the last completion;
 - pure ingest: the same requests without completion (nothing screened), hits per second;
-- raw sqlite3: ``executemany`` of the same rows into the same table and index, one transaction;
+- raw sqlite3: ``executemany`` of the same rows into the same table and index, one transaction,
+  measured in each repeat beside the other two so that the ratios compare like with like;
 - candidates created (and whether they are exactly the injected signals), hits per reason.
 A warm-up cadence first loads the IERS tables and the physics caches, as a running server has.
 """
@@ -148,15 +149,24 @@ def outcome(service: Service) -> tuple[list[float], dict[str, int]]:
 
 
 def run_backend(
-    name: str, make_url_for: Any, cadence: Cadence, warm: Cadence, repeat: int
-) -> tuple[float, float]:
-    """End-to-end and pure-ingest rates (hits/s, medians); prints the details."""
+    name: str,
+    make_url_for: Any,
+    cadence: Cadence,
+    warm: Cadence,
+    repeat: int,
+    raw_rate: Any = None,
+) -> None:
+    """Measure end to end, pure ingest and (when ``raw_rate`` is given) the raw baseline, one
+    after the other in each repeat, so that a change in the machine's load touches all three;
+    print medians and the per-repeat ratios."""
     hits = cadence.hit_count
     full, pure = encoded(cadence, complete=True), encoded(cadence, complete=False)
-    end_to_end, ingest = [], []
+    end_to_end, ingest, raw = [], [], []
     frequencies: list[float] = []
     reasons: dict[str, int] = {}
     for n in range(repeat):
+        if raw_rate is not None:
+            raw.append(raw_rate(n))
         service = Service(make_url_for(f"e2e{n}"))
         post_cadence(service, encoded(warm, complete=True))  # warm caches, as a server is
         end_to_end.append(hits / post_cadence(service, full))
@@ -166,12 +176,19 @@ def run_backend(
         post_cadence(service, encoded(warm, complete=False))
         ingest.append(hits / post_cadence(service, pure))
         service.close()
-    e2e, raw_ingest = statistics.median(end_to_end), statistics.median(ingest)
+    e2e, pure_rate = statistics.median(end_to_end), statistics.median(ingest)
     made = len(frequencies)  # the warm-up cadence carries no sky-fixed signal
     print(f"[{name}] {len(cadence.scans)} scans x {hits // len(cadence.scans)} hits = {hits} hits")
     print(f"  end to end:  {e2e:,.0f} hits/s (median of {repeat}; runs {_list(end_to_end)})")
-    print(f"  pure ingest: {raw_ingest:,.0f} hits/s (median of {repeat}; runs {_list(ingest)})")
-    print(f"  end to end / pure ingest = {e2e / raw_ingest:.2f}")
+    print(f"  pure ingest: {pure_rate:,.0f} hits/s (median of {repeat}; runs {_list(ingest)})")
+    print(f"  end to end / pure ingest = {_ratios(end_to_end, ingest)}")
+    if raw:
+        print(
+            f"  raw sqlite3 executemany, same rows, table and index: "
+            f"{statistics.median(raw):,.0f} rows/s (runs {_list(raw)})"
+        )
+        print(f"  pure ingest / raw sqlite3 = {_ratios(ingest, raw)}")
+        print(f"  end to end / raw sqlite3 = {_ratios(end_to_end, raw)}")
     exact = sorted(frequencies)[-len(cadence.sky_frequencies_hz) :]
     print(
         f"  candidates from the timed cadence: {made} "
@@ -181,7 +198,12 @@ def run_backend(
     print("  hits per reason (warm-up and timed cadence):")
     for reason, count in reasons.items():
         print(f"    {reason:<20} {count:>7,}")
-    return e2e, raw_ingest
+
+
+def _ratios(numerators: list[float], denominators: list[float]) -> str:
+    """The median of the per-repeat ratios, and each of them."""
+    ratios = [a / b for a, b in zip(numerators, denominators, strict=True)]
+    return f"{statistics.median(ratios):.2f} (median; runs {', '.join(f'{r:.2f}' for r in ratios)})"
 
 
 def _list(values: list[float]) -> str:
@@ -200,14 +222,13 @@ def main() -> int:
     warm = make_cadence(site, target, start - timedelta(hours=3), 200, seed=2, sky_signals=0)
     cadence = make_cadence(site, target, start, args.hits_per_scan, seed=1)
     folder = Path(tempfile.mkdtemp(prefix="bench-triage-"))
-    raw = raw_sqlite_rate(f"sqlite:///{folder / 'raw.db'}", cadence)
-    e2e, pure = run_backend(
-        "SQLite", lambda name: f"sqlite:///{folder / name}.db", cadence, warm, args.repeat
-    )
-    print(f"  raw sqlite3 executemany, same rows, table and index: {raw:,.0f} rows/s")
-    print(
-        f"  pure ingest / raw sqlite3 = {pure / raw:.2f}; "
-        f"end to end / raw sqlite3 = {e2e / raw:.2f}"
+    run_backend(
+        "SQLite",
+        lambda name: f"sqlite:///{folder / name}.db",
+        cadence,
+        warm,
+        args.repeat,
+        raw_rate=lambda n: raw_sqlite_rate(f"sqlite:///{folder / f'raw{n}'}.db", cadence),
     )
     print(
         "  goals: end to end >= 25,000 hits/s and >= 0.5 x pure ingest; "
@@ -215,7 +236,9 @@ def main() -> int:
     )
     if args.postgres_url:
         base = make_url(args.postgres_url)
-        run_backend("PostgreSQL", lambda name: _fresh_postgres(base, name), cadence, warm, 1)
+        run_backend(
+            "PostgreSQL", lambda name: _fresh_postgres(base, name), cadence, warm, args.repeat
+        )
     return 0
 
 

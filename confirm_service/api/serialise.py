@@ -39,6 +39,8 @@ def observation_model(observation: Observation, **extra: Any) -> ObservationOut:
         beam=observation.beam,
         cadence=observation.cadence,
         pipeline_run=observation.pipeline_run,
+        sefd_jy=observation.sefd_jy,
+        threshold_snr=observation.threshold_snr,
         detection_count=observation.detection_count,
         created_at=observation.created_at,
         complete=observation.completed_at is not None,

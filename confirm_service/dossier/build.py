@@ -216,6 +216,10 @@ def _followups(session: Session, candidate_id: int) -> dict[str, list[dict]]:
             "drift_hz_s": r.drift_hz_s,
             "frequency_min_hz": r.frequency_min_hz,
             "frequency_max_hz": r.frequency_max_hz,
+            "time_offset_s": r.time_offset_s,
+            "threshold_snr": r.threshold_snr,
+            "sefd_jy": r.sefd_jy,
+            "warnings": list(r.warnings or []),
             "notes": r.notes,
         }
         for r, site in session.execute(

@@ -36,7 +36,16 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
-CHECK_COLUMNS = ["kind", "outcome", "measured", "expected", "tolerance", "unit", "reason"]
+CHECK_COLUMNS = [
+    "kind",
+    "outcome",
+    "measured",
+    "expected",
+    "tolerance",
+    "unit",
+    "reason",
+    "details",
+]
 HISTORY_COLUMNS = ["at", "from_stage", "to_stage", "from_state", "to_state", "reason", "actor"]
 PREDICTION_COLUMNS = [
     "site",
@@ -63,7 +72,18 @@ SCAN_COLUMNS = [
 SIGNOFF_COLUMNS = ["at", "stage", "person", "role", "approve", "rationale"]
 COMMENT_COLUMNS = ["at", "author", "role", "text"]
 REQUEST_COLUMNS = ["created_at", "kind", "stage", "status", "payload"]
-REPORT_COLUMNS = ["observed_at", "site", "detected", "frequency_hz", "drift_hz_s", "notes"]
+REPORT_COLUMNS = [
+    "observed_at",
+    "time_offset_s",
+    "site",
+    "detected",
+    "frequency_hz",
+    "drift_hz_s",
+    "threshold_snr",
+    "sefd_jy",
+    "warnings",
+    "notes",
+]
 ENTRY_COLUMNS = ["seq", "at", "actor", "role", "action", "subject"]
 STYLE = """
 body { font-family: system-ui, sans-serif; margin: 2em; max-width: 1100px; color: #222; }

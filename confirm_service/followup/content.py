@@ -9,15 +9,14 @@ From the candidate's reference detection and the partner site, over the request'
   scan starting then must record for the protocol's matcher to find the signal
   (:func:`protocol.search_windows_hz`: the protocol's sigma multiplier, 3 in the shipped files);
 * which windows can tell a sky-fixed transmitter from a local one: those where Earth's drift
-  at the partner differs from the drift Earth gave at discovery by at least
-  ``DISCRIMINATING_TOLERANCES`` drift tolerances (the doppler_consistency check's tolerance).
+  at the partner differs from the drift Earth gave at discovery by enough drift tolerances for
+  the doppler_consistency check to have power (the rule's one home: ``protocol.drift_power``).
 
 Everything is JSON-ready (floats in Hz, Hz/s, s, deg; times ISO 8601 UTC).
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -34,17 +33,11 @@ from confirm_service.protocol import (
     TargetFact,
     search_windows_hz,
 )
-from confirm_service.protocol.loader import ProtocolLike, model_of
+from confirm_service.protocol.drift_power import DriftRule, drift_rule
 from confirm_service.protocol.reference import predict_from_reference
 
-DISCRIMINATING_TOLERANCES = 3.0
-"""A window discriminates when Earth's drift there differs from the discovery's by this many
-drift tolerances or more (then a transmitter that follows the observer fails the Doppler
-check, common practice, no source)."""
 DEFAULT_SLOT_S = 600.0
 MAX_SLOTS_PER_WINDOW = 36
-DEFAULT_DRIFT_TOLERANCE_HZ_S = 0.02
-"""Used when the protocol has no doppler_consistency check (the shipped files' value)."""
 
 
 @dataclass(frozen=True)
@@ -64,21 +57,6 @@ class Discovery:
     detection: DetectionFact
     observation: ObservationFact
     target: TargetFact
-
-
-def drift_tolerance_hz_s(
-    protocol: ProtocolLike, partner_resolution_hz_s: float, reference_resolution_hz_s: float
-) -> float:
-    """The doppler_consistency tolerance between a partner scan and the reference (Hz/s):
-    ``max(tolerance_hz_s, resolution_multiplier * hypot(r_partner, r_reference))``, with the
-    protocol's first doppler_consistency check's keys."""
-    model = model_of(protocol)
-    for stage in model.stages:
-        for check in stage.checks:
-            if check.kind == "doppler_consistency":
-                combined = math.hypot(partner_resolution_hz_s, reference_resolution_hz_s)
-                return max(check.tolerance_hz_s, check.resolution_multiplier * combined)
-    return DEFAULT_DRIFT_TOLERANCE_HZ_S
 
 
 def _slots(start: datetime, end: datetime, slot_s: float) -> list[float]:
@@ -129,6 +107,7 @@ def _window_entry(
     slot_s: float,
     discovery_earth_drift_hz_s: float,
     tolerance_hz_s: float,
+    rule: DriftRule,
 ) -> dict[str, Any]:
     starts = _slots(window.start, window.end, slot_s)
     middles = np.asarray(starts) + slot_s / 2.0
@@ -148,15 +127,15 @@ def _window_entry(
     )
     difference = np.abs(track.earth_drift_hz_s - discovery_earth_drift_hz_s)
     best = int(np.argmax(difference))
-    ratio = float(difference[best] / tolerance_hz_s)
-    discriminating = ratio >= DISCRIMINATING_TOLERANCES
+    ratio = rule.tolerances_apart(float(difference[best]), tolerance_hz_s)
+    discriminating = rule.has_power(float(difference[best]), tolerance_hz_s)
     why = (
         f"Earth's drift here reaches {track.earth_drift_hz_s[best]:+.4f} Hz/s at "
         f"{_iso(float(middles[best]))[:16]}Z against {discovery_earth_drift_hz_s:+.4f} Hz/s at "
         f"discovery: {difference[best]:.4f} Hz/s apart, {ratio:.1f} drift tolerances of "
         f"{tolerance_hz_s:.4f} Hz/s ("
         + ("at least" if discriminating else "fewer than")
-        + f" the {DISCRIMINATING_TOLERANCES:g} that tell a sky-fixed source from a local one)."
+        + f" the {rule.power_tolerances:g} that tell a sky-fixed source from a local one)."
     )
     return {
         "start": window.start.isoformat(),
@@ -229,7 +208,8 @@ def build_request_content(
         protocol,
     )
     partner_resolution = discovery.observation.channel_width_hz / slot_s
-    tolerance = drift_tolerance_hz_s(protocol, partner_resolution, reference.drift_resolution_hz_s)
+    rule = drift_rule(protocol)
+    tolerance = rule.tolerance(partner_resolution, reference.drift_resolution_hz_s)
     entries = [
         _window_entry(
             protocol,
@@ -240,6 +220,7 @@ def build_request_content(
             slot_s,
             reference.earth_drift_hz_s,
             tolerance,
+            rule,
         )
         for w in windows
         if w.duration_s >= min(slot_s, 60.0)

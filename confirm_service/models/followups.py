@@ -86,6 +86,10 @@ class FollowUpReport(Base):
     pointing_ra_deg: Mapped[float | None]
     pointing_dec_deg: Mapped[float | None]
     observation_id: Mapped[int | None] = mapped_column(ForeignKey("observations.id"))
+    time_offset_s: Mapped[float] = mapped_column(default=0.0)
+    """A sighting's frequency and drift refer to ``observed_at + time_offset_s``."""
+    warnings: Mapped[list[Any]] = mapped_column(JSON, default=list)
+    """What the service noticed on receipt (e.g. a sighting far from the prediction)."""
 
 
 class PartnerSecret(Base):

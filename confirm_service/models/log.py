@@ -55,7 +55,9 @@ class Observation(Base):
 
     A scan is *open* (``completed_at`` is None) while its hits may still arrive; an open scan is
     never evidence that a signal is absent. ``completed_by`` says how it was closed (see
-    ``services.scans.COMPLETION_ROUTES``).
+    ``services.scans.COMPLETION_ROUTES``). ``sefd_jy`` (system-equivalent flux density, Jy) and
+    ``threshold_snr`` (the search's detection threshold), when stated, say how faint a signal
+    the scan could see.
     """
 
     __tablename__ = "observations"
@@ -86,6 +88,8 @@ class Observation(Base):
     completed_at: Mapped[datetime | None]
     completed_by: Mapped[str | None] = mapped_column(String(16))
     screened_run_id: Mapped[int | None]
+    sefd_jy: Mapped[float | None]
+    threshold_snr: Mapped[float | None]
 
     site: Mapped[Site] = relationship(lazy="joined")
     target: Mapped[Target | None] = relationship(lazy="joined")

@@ -6,12 +6,14 @@ astropy to offline IERS data (see iers.configure_offline).
 
 from .doppler import (
     HYDROGEN_LINE_HZ,
+    MAX_EARTH_ACCELERATION_M_S2,
     SPEED_OF_LIGHT_M_S,
     barycentric_drift_hz_s,
     barycentric_frequency_hz,
     doppler_factor,
     drift_from_acceleration_hz_s,
     earth_drift_hz_s,
+    max_earth_drift_hz_s,
     radial_velocity_and_acceleration,
     radial_velocity_m_s,
     residual_drift_hz_s,
@@ -51,6 +53,7 @@ from .prediction import (
 from .visibility import (
     VisibilityWindow,
     altaz,
+    max_elevation_deg,
     next_windows,
     sun_separation_deg,
     visibility_windows,
@@ -60,6 +63,7 @@ configure_offline()
 
 __all__ = [
     "HYDROGEN_LINE_HZ",
+    "MAX_EARTH_ACCELERATION_M_S2",
     "MODEL_DESCRIPTION",
     "SPEED_OF_LIGHT_M_S",
     "PhysicsAccuracyWarning",
@@ -72,6 +76,7 @@ __all__ = [
     "TrackRequest",
     "VisibilityWindow",
     "altaz",
+    "max_elevation_deg",
     "barycentric_drift_hz_s",
     "barycentric_frequency_hz",
     "barycentric_gap_s",
@@ -83,6 +88,7 @@ __all__ = [
     "doppler_factor",
     "drift_from_acceleration_hz_s",
     "earth_drift_hz_s",
+    "max_earth_drift_hz_s",
     "iers_coverage",
     "location_key",
     "next_windows",

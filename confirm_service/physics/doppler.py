@@ -43,12 +43,14 @@ from .iers import check_time_coverage
 __all__ = [
     "DERIVATIVE_STEP_S",
     "HYDROGEN_LINE_HZ",
+    "MAX_EARTH_ACCELERATION_M_S2",
     "SPEED_OF_LIGHT_M_S",
     "barycentric_drift_hz_s",
     "barycentric_frequency_hz",
     "doppler_factor",
     "drift_from_acceleration_hz_s",
     "earth_drift_hz_s",
+    "max_earth_drift_hz_s",
     "radial_velocity_and_acceleration",
     "radial_velocity_m_s",
     "require_positive_frequency",
@@ -60,6 +62,19 @@ __all__ = [
 SPEED_OF_LIGHT_M_S = 299_792_458.0  # exact, SI definition of the metre
 HYDROGEN_LINE_HZ = 1_420_405_751.768  # neutral hydrogen 21 cm line
 DERIVATIVE_STEP_S = 60.0
+_EARTH_ROTATION_RAD_S = 7.292115e-5  # IERS Conventions (2010), nominal mean angular velocity
+_EARTH_EQUATORIAL_RADIUS_M = 6_378_137.0  # WGS 84 semi-major axis
+_SUN_GM_M3_S2 = 1.32712440041e20  # IAU 2015 nominal solar mass parameter (TDB-compatible)
+_ASTRONOMICAL_UNIT_M = 149_597_870_700.0  # IAU 2012 Resolution B2, exact
+_EARTH_MOON_WOBBLE_M_S2 = 4.0e-5  # Earth's pull towards the Earth-Moon barycentre, rounded up
+MAX_EARTH_ACCELERATION_M_S2 = (
+    _EARTH_ROTATION_RAD_S**2 * _EARTH_EQUATORIAL_RADIUS_M  # rotation at the equator, 0.0339
+    + _SUN_GM_M3_S2 / (0.983 * _ASTRONOMICAL_UNIT_M) ** 2  # orbit at perihelion, 0.0061
+    + _EARTH_MOON_WOBBLE_M_S2
+)
+"""Upper bound (m/s^2) on the line-of-sight acceleration of any site on Earth towards any
+direction: centripetal acceleration of the equator plus the Sun's pull at perihelion plus the
+Moon's; about 0.040 m/s^2."""
 _STENCIL = np.array([-2.0, -1.0, 1.0, 2.0])
 _STENCIL_WEIGHTS = np.array([1.0, -8.0, 8.0, -1.0]) / 12.0
 
@@ -136,6 +151,13 @@ def drift_from_acceleration_hz_s(
     return (
         f_site * np.asarray(acceleration_m_s2, dtype=np.float64) / (SPEED_OF_LIGHT_M_S + velocity)
     )
+
+
+def max_earth_drift_hz_s(frequency_hz: ArrayLike) -> NDArray[np.float64]:
+    """The largest drift (Hz/s, magnitude) Earth's motion can give a sky-fixed signal at
+    ``frequency_hz``: f * a_max / c with :data:`MAX_EARTH_ACCELERATION_M_S2`."""
+    values = np.asarray(frequency_hz, dtype=np.float64)
+    return values * MAX_EARTH_ACCELERATION_M_S2 / SPEED_OF_LIGHT_M_S
 
 
 def earth_drift_hz_s(

@@ -32,6 +32,7 @@ from .iers import check_time_coverage
 __all__ = [
     "VisibilityWindow",
     "altaz",
+    "max_elevation_deg",
     "next_windows",
     "sun_separation_deg",
     "visibility_windows",
@@ -83,6 +84,23 @@ def altaz(
         np.asarray(seen.alt.deg, dtype=np.float64),
         np.asarray(seen.az.deg, dtype=np.float64),
     )
+
+
+SPAN_SAMPLE_S = 300.0
+"""Largest spacing (s) of the elevation samples over a span in :func:`max_elevation_deg`."""
+
+
+def max_elevation_deg(
+    location: EarthLocation, target: SkyCoord, start_unix_s: float, duration_s: float
+) -> float:
+    """Highest elevation (deg, no refraction) of the target during [start, start + duration]:
+    astropy alt/az at both ends and every SPAN_SAMPLE_S at most in between (a target's elevation
+    changes by at most 15 deg/h, so the sampled maximum is within 1.25 deg of the true one)."""
+    span = max(float(duration_s), 0.0)
+    count = int(math.ceil(span / SPAN_SAMPLE_S)) + 1
+    times = np.linspace(float(start_unix_s), float(start_unix_s) + span, max(count, 2))
+    elevation, _ = altaz(location, target, time_from_unix_s(times))
+    return float(np.max(elevation))
 
 
 def _separation_deg(

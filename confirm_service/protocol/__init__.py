@@ -41,6 +41,7 @@ from confirm_service.protocol.matching import (
     build_candidate_view,
     build_candidate_views,
     match_detections,
+    report_views,
     search_window_hz,
     search_windows_hz,
 )
@@ -102,6 +103,7 @@ __all__ = [
     "match_detections",
     "reference_of",
     "search_window_hz",
+    "report_views",
     "search_windows_hz",
     "signoff_statuses",
     "signoffs_met",

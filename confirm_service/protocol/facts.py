@@ -25,12 +25,15 @@ TERMINAL_STATES = (STATE_REJECTED, STATE_PASSED_PROTOCOL, STATE_WITHDRAWN)
 
 @dataclass(frozen=True, slots=True)
 class SiteFact:
-    """A receiving site: WGS84 geodetic latitude/longitude (deg) and elevation (m)."""
+    """A receiving site: WGS84 geodetic latitude/longitude (deg) and elevation (m), and the
+    lowest target elevation (deg) it observes at (``min_elevation_deg``; 0 is the geometric
+    horizon)."""
 
     code: str
     latitude_deg: float
     longitude_deg: float
     elevation_m: float
+    min_elevation_deg: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)
@@ -66,6 +69,8 @@ class ObservationFact:
     ``detections`` holds the scan's detections inside the search window the protocol asked for
     (``search_window_hz``), not necessarily every hit of the scan. ``complete`` is False while
     the scan may still receive hits: an open scan is evidence of presence, never of absence.
+    ``sefd_jy`` (system-equivalent flux density, Jy) and ``threshold_snr`` (the search's
+    detection threshold) say how faint a signal the scan could see, when the pipeline states them.
     """
 
     id: int
@@ -84,6 +89,8 @@ class ObservationFact:
     cadence: str | None = None
     complete: bool = True
     detections: tuple[DetectionFact, ...] = ()
+    sefd_jy: float | None = None
+    threshold_snr: float | None = None
 
     @property
     def end_unix_s(self) -> float:
@@ -93,7 +100,11 @@ class ObservationFact:
 
 @dataclass(frozen=True, slots=True)
 class ReportFact:
-    """A partner site's follow-up report: searched a band for a duration, saw it or not."""
+    """A partner site's follow-up report: searched a band for a duration, saw it or not.
+
+    ``unix_s`` is the start of the look; a sighting's ``frequency_hz`` and ``drift_hz_s`` refer
+    to the instant ``unix_s + time_offset_s`` (as a hit's refer to scan start + offset).
+    """
 
     id: int
     site: SiteFact
@@ -110,6 +121,7 @@ class ReportFact:
     """System-equivalent flux density of the partner's receiver (Jy)."""
     pointing_ra_deg: float | None = None
     pointing_dec_deg: float | None = None
+    time_offset_s: float = 0.0
 
 
 @dataclass(frozen=True, slots=True)

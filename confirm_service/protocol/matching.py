@@ -15,12 +15,15 @@ scan's ``drift_mismatch``: it may be the signal with a drift that does not follo
 unrelated hit; checks weigh it as ambiguous evidence, never as a link.
 
 Scans away from the target (off-source scans of a cadence, other beams) are searched over a
-wider band: ``D * |t - t0| + off_source_margin_hz`` either side of the reference frequency
-f0 at t0, with D the largest plausible drift (``ProtocolModel.off_source_max_abs_drift_hz_s``),
-since a signal that leaks in away from the target need not follow the sky-fixed track. Any hit
-there, at any drift, is the scan's ``nearby`` hit when none is on the track.
+wider band: their own track window grown by ``(D + E) * dt + off_source_margin_hz`` either
+side, with ``dt`` the longest time to the nearest anchor (a target scan, or the reference hit),
+D the largest plausible drift (``ProtocolModel.off_source_max_abs_drift_hz_s``) and E the
+largest drift Earth can give, since a signal that leaks in away from the target need not follow
+the sky-fixed track. Any hit there, at any drift, is the scan's
+``nearby`` hit when none is on the track.
 
-Partner reports are matched the same way at their own instant (``ReportFact.unix_s``).
+Partner reports are matched the same way at their own instant (``ReportFact.unix_s +
+ReportFact.time_offset_s``, the report's time stamp plus its offset).
 
 The search window of a scan is the band the track plus tolerance sweeps during the scan
 (widened as above away from the target); a scan "covers" the prediction when it is complete and its
@@ -37,6 +40,7 @@ from typing import Any
 
 import numpy as np
 
+from confirm_service.physics import max_earth_drift_hz_s
 from confirm_service.protocol.bands import BandSet, InterferenceBand, as_band_set
 from confirm_service.protocol.facts import (
     CandidateFacts,
@@ -398,21 +402,39 @@ def _widened_away_from_target(
     low: np.ndarray,
     high: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Windows of scans away from the target widened to f0 +- (D |t - t0| + margin)."""
+    """Windows (Hz) of scans away from the target, widened from the nearest anchor in time.
+
+    A scan's anchors are its candidate's target scans (any site) and the reference hit itself;
+    ``dt`` is the longest time between an instant of the nearest anchor and one of the scan.
+    Wherever the signal was in that anchor, a drift of at most D carries it at most ``D * dt``
+    away, and the scan's own track (its site's Doppler shift included) moves at most
+    ``E * dt`` over the same time, E being the largest drift Earth can give
+    (:func:`~confirm_service.physics.max_earth_drift_hz_s`). So the scan's own track window
+    grows by ``(D + E) * dt + off_source_margin_hz`` either side. Measuring from the nearest
+    anchor rather than from the reference keeps a scan days later from spreading over
+    megahertz.
+    """
     if not wide.any():
         return low, high
-    f0 = np.array([r.observed_frequency_hz for r in signals], dtype=np.float64)[owner_of_item]
-    t0 = np.array([r.unix_s for r in signals], dtype=np.float64)[owner_of_item]
-    limit = np.array(
-        [protocol.off_source_max_abs_drift_hz_s(r.observed_frequency_hz) for r in signals],
-        dtype=np.float64,
-    )[owner_of_item]
-    farthest_s = np.maximum(np.abs(starts - t0), np.abs(starts + spans - t0))
-    half_width = limit * farthest_s + protocol.matching.off_source_margin_hz
-    return (
-        np.where(wide, np.minimum(low, f0 - half_width), low),
-        np.where(wide, np.maximum(high, f0 + half_width), high),
-    )
+    low, high = low.copy(), high.copy()
+    ends = starts + spans
+    for owner in np.unique(owner_of_item[wide]):
+        signal = signals[int(owner)]
+        f0 = signal.observed_frequency_hz
+        limit = protocol.off_source_max_abs_drift_hz_s(f0) + float(max_earth_drift_hz_s(f0))
+        mine = owner_of_item == owner
+        scans = np.flatnonzero(mine & wide)
+        anchors = np.flatnonzero(mine & ~wide)
+        anchor_start = np.append(starts[anchors], signal.unix_s)
+        anchor_end = np.append(ends[anchors], signal.unix_s)
+        gap_s = np.maximum(  # scans x anchors: the longest time from one to the other
+            np.abs(ends[scans, None] - anchor_start[None, :]),
+            np.abs(anchor_end[None, :] - starts[scans, None]),
+        ).min(axis=1)
+        reach_hz = limit * gap_s + protocol.matching.off_source_margin_hz
+        low[scans] -= reach_hz
+        high[scans] += reach_hz
+    return low, high
 
 
 def _view_of(
@@ -485,11 +507,16 @@ def _scan_match(
 
 
 def _report_detection(report: ReportFact) -> tuple[DetectionFact, ...]:
-    """A partner's sighting as a pseudo-detection at the report's own instant (offset 0)."""
+    """A partner's sighting as a pseudo-detection at the report's own instant: its time stamp
+    plus ``time_offset_s``, as a hit's instant is its scan start plus its offset."""
     if not report.detected or report.frequency_hz is None:
         return ()
     drift = 0.0 if report.drift_hz_s is None else report.drift_hz_s
-    return (DetectionFact(-report.id, -report.id, report.frequency_hz, drift, 0.0, 0.0),)
+    return (
+        DetectionFact(
+            -report.id, -report.id, report.frequency_hz, drift, 0.0, report.time_offset_s
+        ),
+    )
 
 
 def _candidate_items(facts: CandidateFacts) -> list[_Item]:
@@ -673,6 +700,31 @@ def search_windows_hz(
         [items],
     )
     return {o.id: (batch.low_hz[i], batch.high_hz[i]) for i, o in enumerate(observations)}
+
+
+def report_views(
+    protocol: Any,
+    reference_detection: DetectionFact,
+    reference_observation: ObservationFact,
+    target: TargetFact,
+    reports: Sequence[ReportFact],
+    physics_context: PhysicsContext | None = None,
+) -> list[ReportView]:
+    """Reports judged against the candidate's track, each at its own instant (time stamp plus
+    offset), as the checks judge them; for a report on its own, e.g. on receipt."""
+    if not reports:
+        return []
+    context = physics_context or default_physics_context()
+    width = reference_observation.channel_width_hz
+    items = [_Item(r.site, r.unix_s, r.duration_s, width, _report_detection(r)) for r in reports]
+    batch = _predict_items(
+        context,
+        _protocol_model(protocol),
+        [(reference_detection, reference_observation, target)],
+        [items],
+    )
+    reference = batch.references[0]
+    return [_report_view(batch, i, r, reference) for i, r in enumerate(reports)]
 
 
 def search_window_hz(

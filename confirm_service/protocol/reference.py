@@ -171,6 +171,7 @@ class PhysicsContext:
         self._targets: _BoundedCache[Any] = _BoundedCache(max_entries)
         self._requests: _BoundedCache[Any] = _BoundedCache(max_entries)
         self._distances: _BoundedCache[float] = _BoundedCache(max_entries)
+        self._elevations: _BoundedCache[float] = _BoundedCache(max_entries)
         self._known_distances: dict[tuple[SiteFact, SiteFact], float] = {}
 
     def location(self, site: SiteFact) -> Any:
@@ -200,6 +201,18 @@ class PhysicsContext:
             (site_key, target_key),
             lambda: physics.TrackRequest(
                 self.location(site), self.target(target), site_key, target_key
+            ),
+        )
+
+    def max_elevation_deg(
+        self, site: SiteFact, target: TargetFact, start_unix_s: float, duration_s: float
+    ) -> float:
+        """Highest elevation (deg) of the target at the site during a span (cached)."""
+        key = (_site_key(site), _target_key(target), float(start_unix_s), float(duration_s))
+        return self._elevations.get_or_make(
+            key,
+            lambda: physics.max_elevation_deg(
+                self.location(site), self.target(target), start_unix_s, duration_s
             ),
         )
 

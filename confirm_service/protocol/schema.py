@@ -111,9 +111,10 @@ class MatchingParams(StrictModel):
 
     Scans away from the target (off-source scans, other beams) are searched wider: a signal
     that enters through the sidelobes need not follow the sky-fixed track, so any hit within
-    ``D * |t - t0| + off_source_margin_hz`` of the reference frequency counts, at any drift, with
-    D the largest plausible drift: ``off_source_max_abs_drift_hz_s`` or ``..._nhz``, else the
-    intake limit.
+    ``D * dt + off_source_margin_hz`` of the scan's track counts (plus Earth's own largest drift
+    over ``dt``), at any drift, with ``dt`` the time to the nearest target scan or the reference
+    hit and D the largest plausible drift: ``off_source_max_abs_drift_hz_s`` or ``..._nhz``,
+    else the intake limit (``protocol.matching`` applies it).
     """
 
     frequency_tolerance_floor_hz: PositiveFloat

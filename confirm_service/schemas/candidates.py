@@ -42,7 +42,13 @@ class LinkedDetection(BaseModel):
     drift_hz_s: float
     snr: float
     on_source: bool
-    start: UtcIso
+    start: UtcIso = Field(description="Start of the hit's scan")
+    time_offset_s: float = Field(default=0.0, description="s after the scan's start")
+    time: UtcIso | None = Field(
+        default=None,
+        description="The instant frequency_hz and drift_hz_s refer to: start + time_offset_s "
+        "(give it as time to /predictions)",
+    )
     role: str
 
 
@@ -101,7 +107,9 @@ class CandidateSummary(BaseModel):
     target: str | None
     site: str
     reference_detection: int
-    reference_time: UtcIso
+    reference_time: UtcIso = Field(
+        description="Instant of the reference hit: its scan's start plus its time_offset_s"
+    )
     barycentric_frequency_hz: float
     residual_drift_hz_s: float
     held: bool

@@ -15,6 +15,7 @@ from confirm_service.schemas.bounds import (
     ObservationTime,
     RowId,
     Snr,
+    TimeOffsetS,
 )
 from confirm_service.schemas.common import (
     AwareTime,
@@ -49,16 +50,33 @@ class ReportIn(StrictModel):
     the scan joins the log and the checks count it; ``observed_at``, ``duration_s`` and the band
     default to the scan's. ``observation_id`` names a scan already in this service's log (a
     partner instance reporting back what its own pipeline posted). ``threshold_snr`` is the
-    detection threshold of the search, ``sefd_jy`` the system-equivalent flux density (Jy).
+    detection threshold of the search, ``sefd_jy`` the system-equivalent flux density (Jy); a
+    look that saw nothing is a miss only if the signal's expected SNR there reaches the
+    threshold and the target was above the site's elevation limit.
+
+    The instant: ``frequency_hz`` and ``drift_hz_s`` refer to ``observed_at + time_offset_s``
+    (taken from the scan's strongest hit when they come from the scan), as a hit's refer to its
+    scan start plus its ``time_offset_s``.
     """
 
     site: Code | None = None
     observed: StrictBool = True
     not_observed_reason: NotObservedReason | None = None
-    observed_at: ObservationTime | None = None
+    observed_at: ObservationTime | None = Field(
+        default=None, description="Start of the look (UTC); the scan's start by default."
+    )
     duration_s: DurationS | None = None
+    time_offset_s: TimeOffsetS | None = Field(
+        default=None,
+        description="s after observed_at: the instant frequency_hz and drift_hz_s refer to "
+        "(default 0, or the strongest hit's offset when they come from the scan).",
+    )
     detected: StrictBool = False
-    frequency_hz: FrequencyHz | None = None
+    frequency_hz: FrequencyHz | None = Field(
+        default=None,
+        description="Hz, topocentric at the partner, at observed_at + time_offset_s: the "
+        "frequency /predictions gives for this site with to_time at that instant.",
+    )
     drift_hz_s: DriftHzS | None = None
     frequency_min_hz: FrequencyHz | None = None
     frequency_max_hz: FrequencyHz | None = None
@@ -94,6 +112,13 @@ class ReportIn(StrictModel):
                 strongest = max(scan.detections, key=lambda row: row["snr"])
                 self.frequency_hz = strongest["frequency_hz"]
                 self.drift_hz_s = strongest["drift_hz_s"]
+                hit_instant = scan.start.timestamp() + strongest.get("time_offset_s", 0.0)
+                self.time_offset_s = hit_instant - self.observed_at.timestamp()
+            self.sefd_jy = self.sefd_jy or scan.sefd_jy
+            self.threshold_snr = self.threshold_snr or scan.threshold_snr
+            self.observation = scan.model_copy(
+                update={"sefd_jy": self.sefd_jy, "threshold_snr": self.threshold_snr}
+            )
         if self.observation_id is not None:
             return self  # the rest comes from the named scan
         missing = [
@@ -131,8 +156,15 @@ class ReportOut(BaseModel):
     pointing_ra_deg: float | None = None
     pointing_dec_deg: float | None = None
     observation_id: int | None = None
+    time_offset_s: float = 0.0
     notes: str | None
     received_at: UtcIso
+    warnings: list[str] = Field(
+        default=[],
+        description="What the service noticed on receipt, e.g. a sighting far outside the "
+        "band predicted for this site and instant (also in the audit log). The report is "
+        "stored either way.",
+    )
 
 
 class FollowUpCreate(StrictModel):

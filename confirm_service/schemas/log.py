@@ -145,10 +145,21 @@ class DetectionIn(TypedDict):
     """
 
     __pydantic_config__ = ConfigDict(extra="forbid")  # type: ignore[misc]
-    frequency_hz: FrequencyHz
-    drift_hz_s: DriftHzS
+    frequency_hz: Annotated[
+        FrequencyHz,
+        Field(
+            description="Hz, topocentric, at the hit's instant: the scan's start plus "
+            "time_offset_s (the same instant /predictions takes as time, and matching uses)"
+        ),
+    ]
+    drift_hz_s: Annotated[DriftHzS, Field(description="Hz/s, observed, at the hit's instant")]
     snr: Snr
-    time_offset_s: NotRequired[TimeOffsetS]
+    time_offset_s: NotRequired[
+        Annotated[
+            TimeOffsetS,
+            Field(description="s after the scan start: the instant frequency_hz refers to"),
+        ]
+    ]
     bandwidth_hz: NotRequired[SpectralWidthHz | None]
     beam: NotRequired[Annotated[str, Field(max_length=64), NoNul] | None]
     candidate: NotRequired[StrictBool]
@@ -203,6 +214,16 @@ class ObservationIn(StrictModel):
     beam: Annotated[str, Field(max_length=64)] | None = None
     cadence: Annotated[str, Field(max_length=128)] | None = None
     pipeline_run: Annotated[str, Field(max_length=128)] | None = None
+    sefd_jy: Annotated[float, Field(gt=0, allow_inf_nan=False)] | None = Field(
+        default=None,
+        description="System-equivalent flux density of the receiver for this scan (Jy). With "
+        "the detection threshold it says how faint a signal the scan could see: a scan that "
+        "saw nothing counts as a miss only if the signal's expected SNR there reaches the "
+        "threshold (radiometer equation, see protocol.misses).",
+    )
+    threshold_snr: Snr | None = Field(
+        default=None, description="Detection threshold (signal-to-noise ratio) of the search."
+    )
     detections: list[DetectionIn] = []
     complete: StrictBool | None = Field(
         default=None,
@@ -240,6 +261,8 @@ class ObservationOut(OutModel):
     beam: str | None
     cadence: str | None
     pipeline_run: str | None
+    sefd_jy: float | None = None
+    threshold_snr: float | None = None
     detection_count: int
     created_at: UtcIso
     complete: bool

@@ -28,16 +28,25 @@ class SiteQuery(StrictModel):
 
 class PredictionQuery(SiteQuery):
     time: ObservationTime = Field(
-        description="ISO 8601 with offset, 1950 to 2200: when the signal was seen"
+        description="ISO 8601 with offset, 1950 to 2200: the instant observed_frequency_hz "
+        "refers to. For a hit: its scan's start plus its time_offset_s (a candidate's "
+        "reference_time, a linked detection's time). For a report: its observed_at plus its "
+        "time_offset_s. Matching uses the same instants."
     )
-    observed_frequency_hz: FrequencyHz
+    observed_frequency_hz: FrequencyHz = Field(
+        description="Hz, topocentric at the site, at the instant given as time"
+    )
     observed_drift_hz_s: DriftHzS | None = None
     drift_uncertainty_hz_s: DriftUncertaintyHzS | None = None
     to_site: str | None = None
     to_site_lat: Latitude | None = None
     to_site_lon: Longitude | None = None
     to_site_height: ElevationM | None = None
-    to_time: ObservationTime | None = None
+    to_time: ObservationTime | None = Field(
+        default=None,
+        description="The instant to predict for (default: time). A report made from this "
+        "prediction states predicted_frequency_hz at observed_at + time_offset_s = to_time.",
+    )
 
 
 class VisibilityQuery(SiteQuery):

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 from sqlalchemy import ColumnElement, and_, func, or_, select
@@ -195,6 +195,8 @@ def linked_detections(session: Session, candidate_id: int) -> list[LinkedDetecti
             snr=detection.snr,
             on_source=observation.on_source,
             start=observation.start,
+            time_offset_s=detection.time_offset_s,
+            time=observation.start + timedelta(seconds=detection.time_offset_s),
             role=link.role,
         )
         for link, detection, observation, site in rows
@@ -236,8 +238,10 @@ def report_out(report: FollowUpReport, site_code: str) -> ReportOut:
         pointing_ra_deg=report.pointing_ra_deg,
         pointing_dec_deg=report.pointing_dec_deg,
         observation_id=report.observation_id,
+        time_offset_s=report.time_offset_s,
         notes=report.notes,
         received_at=report.received_at,
+        warnings=list(report.warnings or []),
     )
 
 

@@ -44,7 +44,9 @@ MAX_SCAN = timedelta(hours=6)
 
 
 def site_fact(site: Site) -> SiteFact:
-    return SiteFact(site.code, site.latitude_deg, site.longitude_deg, site.elevation_m)
+    return SiteFact(
+        site.code, site.latitude_deg, site.longitude_deg, site.elevation_m, site.min_elevation_deg
+    )
 
 
 def target_fact(target: Target) -> TargetFact:
@@ -91,6 +93,8 @@ def observation_fact(
         cadence=observation.cadence,
         complete=observation.completed_at is not None,
         detections=tuple(detections),
+        sefd_jy=observation.sefd_jy,
+        threshold_snr=observation.threshold_snr,
     )
 
 
@@ -113,6 +117,9 @@ _SCAN_COLUMNS = (
     Observation.beam,
     Observation.cadence,
     Observation.completed_at,
+    Site.min_elevation_deg,
+    Observation.sefd_jy,
+    Observation.threshold_snr,
 )
 
 
@@ -127,7 +134,7 @@ def _scan_query():  # type: ignore[no-untyped-def]
 def _scan_fact(row: Any) -> ObservationFact:
     return ObservationFact(
         id=row[0],
-        site=SiteFact(row[1], row[2], row[3], row[4]),
+        site=SiteFact(row[1], row[2], row[3], row[4], row[18]),
         target_name=row[5],
         pointing_ra_deg=row[6],
         pointing_dec_deg=row[7],
@@ -141,6 +148,8 @@ def _scan_fact(row: Any) -> ObservationFact:
         beam=row[15],
         cadence=row[16],
         complete=row[17] is not None,
+        sefd_jy=row[19],
+        threshold_snr=row[20],
     )
 
 
@@ -182,55 +191,59 @@ def related_scans(
     return direct + overlapping
 
 
-CLUSTER_GAP_HZ = 200_000.0
-"""Windows closer than this share one range query (observation_id IN (...) AND frequency)."""
-
-
-def _clusters(windows: dict[int, tuple[float, float]]) -> list[tuple[float, float, list[int]]]:
-    """Windows merged into frequency clusters: (low, high, observation ids)."""
-    clusters: list[tuple[float, float, list[int]]] = []
-    for observation_id, (low, high) in sorted(windows.items(), key=lambda item: item[1][0]):
-        if clusters and low - clusters[-1][1] <= CLUSTER_GAP_HZ:
-            c_low, c_high, ids = clusters[-1]
-            clusters[-1] = (c_low, max(c_high, high), [*ids, observation_id])
-        else:
-            clusters.append((low, high, [observation_id]))
-    return clusters
-
-
-_DETECTION_COLUMNS = (
-    Detection.id,
-    Detection.observation_id,
-    Detection.frequency_hz,
-    Detection.drift_hz_s,
-    Detection.snr,
-    Detection.time_offset_s,
-    Detection.bandwidth_hz,
-    Detection.beam,
+_WINDOW_QUERY = (
+    "WITH w(observation_id, low_hz, high_hz) AS (VALUES {rows}) "
+    "SELECT d.id, d.observation_id, d.frequency_hz, d.drift_hz_s, d.snr, d.time_offset_s, "
+    "d.bandwidth_hz, d.beam FROM w CROSS JOIN detections d "
+    "WHERE d.observation_id = w.observation_id AND d.frequency_hz BETWEEN w.low_hz AND w.high_hz "
+    "ORDER BY d.id"
 )
+"""One statement for many windows: each (scan, band) row of ``w`` is one range scan of the
+(observation_id, frequency_hz) index. ``CROSS JOIN`` keeps SQLite's loop over ``w`` outermost;
+PostgreSQL plans the join itself."""
+
+
+WINDOWS_PER_STATEMENT = 1_000
+"""Windows per statement: three parameters each, well inside SQLite's 32,766."""
+
+
+def window_statement(count: int, dialect: str) -> str:
+    """The window query for ``count`` windows, with the driver's parameter markers."""
+    marker = "%s" if dialect == "postgresql" else "?"
+    if dialect == "postgresql":  # the first row types the VALUES columns
+        first = f"(CAST({marker} AS integer), CAST({marker} AS double precision), " + (
+            f"CAST({marker} AS double precision))"
+        )
+    else:
+        first = f"({marker}, {marker}, {marker})"
+    rows = ", ".join([first] + [f"({marker}, {marker}, {marker})"] * (count - 1))
+    return _WINDOW_QUERY.format(rows=rows)
 
 
 def detections_in_windows(
     session: Session, windows: dict[int, tuple[float, float]]
 ) -> dict[int, list[DetectionFact]]:
-    """The detections of each scan inside its frequency window, by the frequency index.
+    """The detections of each scan inside its frequency window (Hz), by the frequency index.
 
-    One indexed range query per cluster of nearby windows; rows are then kept only if they lie
-    inside their own scan's window.
+    One statement per thousand windows, read straight off the DB-API cursor into facts, in id
+    order: only the rows inside their own scan's window leave the database.
     """
     found: dict[int, list[DetectionFact]] = {observation_id: [] for observation_id in windows}
-    for low, high, ids in _clusters(windows):
-        rows = session.execute(
-            select(*_DETECTION_COLUMNS).where(
-                Detection.observation_id.in_(ids), Detection.frequency_hz.between(low, high)
-            )
+    if not windows:
+        return found
+    connection = session.connection()
+    items = list(windows.items())
+    for first in range(0, len(items), WINDOWS_PER_STATEMENT):
+        chunk = items[first : first + WINDOWS_PER_STATEMENT]
+        statement = window_statement(len(chunk), connection.dialect.name)
+        parameters = tuple(
+            value
+            for observation_id, (low, high) in chunk
+            for value in (observation_id, float(low), float(high))
         )
-        for row in rows:
-            w_low, w_high = windows[row.observation_id]
-            if w_low <= row.frequency_hz <= w_high:
-                found[row.observation_id].append(DetectionFact(*row))
-    for rows in found.values():
-        rows.sort(key=lambda d: d.id)
+        cursor = connection.exec_driver_sql(statement, parameters)
+        for row in cursor.cursor.fetchall():
+            found[row[1]].append(DetectionFact(*row))
     return found
 
 
@@ -247,23 +260,26 @@ def report_facts(session: Session, candidate_id: int) -> tuple[ReportFact, ...]:
         )
         .order_by(FollowUpReport.id)
     ).all()
-    return tuple(
-        ReportFact(
-            id=report.id,
-            site=site_fact(site),
-            unix_s=report.observed_at.timestamp(),
-            detected=report.detected,
-            frequency_hz=report.frequency_hz,
-            drift_hz_s=report.drift_hz_s,
-            frequency_min_hz=report.frequency_min_hz,
-            frequency_max_hz=report.frequency_max_hz,
-            duration_s=report.duration_s,
-            threshold_snr=report.threshold_snr,
-            sefd_jy=report.sefd_jy,
-            pointing_ra_deg=report.pointing_ra_deg,
-            pointing_dec_deg=report.pointing_dec_deg,
-        )
-        for report, site in rows
+    return tuple(report_fact(report, site) for report, site in rows)
+
+
+def report_fact(report: FollowUpReport, site: Site) -> ReportFact:
+    """A stored report as the protocol sees it."""
+    return ReportFact(
+        id=report.id,
+        site=site_fact(site),
+        unix_s=report.observed_at.timestamp(),
+        detected=report.detected,
+        frequency_hz=report.frequency_hz,
+        drift_hz_s=report.drift_hz_s,
+        frequency_min_hz=report.frequency_min_hz,
+        frequency_max_hz=report.frequency_max_hz,
+        duration_s=report.duration_s,
+        threshold_snr=report.threshold_snr,
+        sefd_jy=report.sefd_jy,
+        pointing_ra_deg=report.pointing_ra_deg,
+        pointing_dec_deg=report.pointing_dec_deg,
+        time_offset_s=report.time_offset_s or 0.0,
     )
 
 

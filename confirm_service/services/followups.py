@@ -34,7 +34,7 @@ from confirm_service.models import (
     OutboundMessage,
     Site,
 )
-from confirm_service.protocol import default_physics_context
+from confirm_service.protocol import default_physics_context, report_views
 from confirm_service.schemas.followups import FollowUpCreate, ReportIn
 from confirm_service.services import facts as factbook
 from confirm_service.services import messages
@@ -629,10 +629,12 @@ def record_report(
         pointing_ra_deg=data.pointing_ra_deg,
         pointing_dec_deg=data.pointing_dec_deg,
         observation_id=observation.id if observation else None,
+        time_offset_s=data.time_offset_s or 0.0,
         notes=data.notes,
     )
     session.add(report)
     session.flush()
+    report.warnings = report_warnings(session, candidate, report, site)
     summary = data.model_dump(mode="json", exclude={"observation"})
     record(
         session,
@@ -644,6 +646,7 @@ def record_report(
             "request_id": report.request_id,
             "observation_id": report.observation_id,
             **summary,
+            "warnings": report.warnings,
         },
     )
     if request is not None and can_move(request.status, S.REPORTED):
@@ -651,6 +654,58 @@ def record_report(
     if candidate.state == "open":
         reevaluate(session, actor, candidate)
     return report
+
+
+def report_warnings(
+    session: Session, candidate: Candidate, report: FollowUpReport, site: Site
+) -> list[str]:
+    """What a partner should hear about its report on receipt: a sighting outside the band
+    predicted for its site at the report's instant (``observed_at + time_offset_s``), a look
+    whose band misses the prediction, a candidate already decided. The report is kept anyway."""
+    warnings = []
+    if candidate.state != "open":
+        warnings.append(
+            f"Candidate {candidate.id} is {candidate.state}: the report is stored and audited "
+            "but does not change the candidate (a coordinator may reopen it)."
+        )
+    if not report.observed:
+        return warnings
+    detection, observation, target = factbook.reference_parts(
+        session, candidate.reference_detection_id
+    )
+    assert target is not None, "candidates always have a target"
+    (view,) = report_views(
+        protocol_of(session, candidate),
+        factbook.detection_fact(detection),
+        factbook.observation_fact(observation),
+        factbook.target_fact(target),
+        [factbook.report_fact(report, site)],
+    )
+    instant = report.observed_at + timedelta(seconds=report.time_offset_s or 0.0)
+    where = f"{site.code} at {instant.isoformat()}"
+    if report.detected and report.frequency_hz is not None:
+        offset_hz = report.frequency_hz - view.predicted_frequency_hz
+        if abs(offset_hz) > view.frequency_tolerance_hz:
+            warnings.append(
+                f"The reported frequency {report.frequency_hz:.1f} Hz is {offset_hz:+.1f} Hz "
+                f"from the {view.predicted_frequency_hz:.1f} Hz predicted for {where}, outside "
+                f"the predicted band of +-{view.frequency_tolerance_hz:.1f} Hz: it is not "
+                "counted as a sighting of this candidate's signal."
+            )
+        elif view.drift_mismatch:
+            warnings.append(
+                f"The reported drift {report.drift_hz_s:+.4f} Hz/s differs from the "
+                f"{view.predicted_drift_hz_s:+.4f} Hz/s predicted for {where} by more than "
+                f"{view.drift_tolerance_hz_s:.4f} Hz/s: it is not counted as a sighting."
+            )
+    elif not view.covers:
+        warnings.append(
+            f"The searched band {report.frequency_min_hz:.1f}-{report.frequency_max_hz:.1f} Hz "
+            f"does not contain the band predicted for {site.code} during the look "
+            f"({view.window_low_hz:.1f}-{view.window_high_hz:.1f} Hz): the look counts "
+            "neither as a sighting nor as a miss."
+        )
+    return warnings
 
 
 def _report_site(

@@ -90,12 +90,46 @@ def _allocate_detection_ids(session: Session, count: int) -> list[int]:
 
 
 def _insert_detection_rows(session: Session, rows: list[tuple[Any, ...]]) -> None:
-    """Positional executemany through the DBAPI: the fastest insert SQLAlchemy offers."""
+    """Write ``rows`` (in :data:`DETECTION_COLUMNS` order) in one statement of the driver.
+
+    PostgreSQL gets ``COPY ... FROM STDIN`` in psycopg's binary format (float64 values travel
+    as their eight bytes, so nothing is rounded); other databases get a positional
+    ``executemany`` through the DB-API, the fastest insert SQLAlchemy offers.
+    """
     connection = session.connection()
+    columns = ", ".join(DETECTION_COLUMNS)
+    if connection.dialect.name == "postgresql":
+        _copy_detection_rows(connection.connection.driver_connection, columns, rows)
+        return
     marker = "%s" if connection.dialect.paramstyle in ("format", "pyformat") else "?"
     placeholders = ", ".join([marker] * len(DETECTION_COLUMNS))
-    statement = f"INSERT INTO detections ({', '.join(DETECTION_COLUMNS)}) VALUES ({placeholders})"
+    statement = f"INSERT INTO detections ({columns}) VALUES ({placeholders})"
     connection.exec_driver_sql(statement, rows)
+
+
+def _copy_detection_rows(driver: Any, columns: str, rows: list[tuple[Any, ...]]) -> None:
+    """``COPY detections FROM STDIN (FORMAT BINARY)`` through psycopg, inside the open
+    transaction; the column types are declared so that psycopg's C extension packs each row
+    without looking at its values' Python types."""
+    statement = f"COPY detections ({columns}) FROM STDIN (FORMAT BINARY)"
+    with driver.cursor() as cursor, cursor.copy(statement) as copy:
+        copy.set_types(_COPY_TYPES)
+        for row in rows:
+            copy.write_row(row)
+
+
+_COPY_TYPES = (  # the detections table's column types, in DETECTION_COLUMNS order
+    "int4",
+    "int4",
+    "float8",
+    "float8",
+    "float8",
+    "float8",
+    "float8",
+    "varchar",
+    "bool",
+    "varchar",
+)
 
 
 def _frequency_of(row: tuple[Any, ...]) -> float:
@@ -227,6 +261,8 @@ def create_observation(
         beam=data.beam,
         cadence=data.cadence,
         pipeline_run=data.pipeline_run,
+        sefd_jy=data.sefd_jy,
+        threshold_snr=data.threshold_snr,
         detection_count=0,
     )
     observation.site = site

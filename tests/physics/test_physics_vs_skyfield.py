@@ -10,11 +10,13 @@ import pytest
 
 from confirm_service.physics import (
     HYDROGEN_LINE_HZ,
+    MAX_EARTH_ACCELERATION_M_S2,
     SPEED_OF_LIGHT_M_S,
     TrackCache,
     TrackRequest,
     default_jpl_ephemeris_path,
     drift_from_acceleration_hz_s,
+    max_earth_drift_hz_s,
     radial_velocity_and_acceleration,
     radial_velocity_m_s,
     set_ephemeris,
@@ -128,3 +130,19 @@ def test_jpl_ephemeris_file_brings_astropy_closer_to_skyfield(skyfield_ref, buil
     ours = radial_velocity_m_s(site_location(*site), target_coord(ra, dec), utc_time(moment))
     theirs = skyfield_ref.radial_velocity_m_s(site, ra, dec, skyfield_ref.times([moment]))[0]
     assert abs(float(ours) - theirs) <= 0.005
+
+
+def test_largest_earth_drift_bounds_skyfield_drifts(skyfield_ref, sky_times):
+    # Source: skyfield 1.x + DE421 (independent code) for the drifts; the bound is built from
+    # published constants (IERS 2010 rotation rate, WGS 84 radius, IAU solar GM and au). The
+    # equator's centripetal acceleration is 0.0339 m/s^2 (a handbook fact), so the bound must
+    # lie between that and 0.045 m/s^2, and no sampled drift may exceed it.
+    assert 0.0339 < MAX_EARTH_ACCELERATION_M_S2 < 0.045
+    bound = float(max_earth_drift_hz_s(F_HZ))
+    worst = 0.0
+    for site in SITES:
+        for ra_deg, dec_deg in TARGETS:
+            drift = skyfield_ref.earth_drift_hz_s(site, ra_deg, dec_deg, sky_times, F_HZ)
+            worst = max(worst, float(np.max(np.abs(drift))))
+    assert worst <= bound
+    assert worst > 0.5 * bound  # the equatorial site sees most of the rotation term

@@ -20,6 +20,7 @@ from confirm_service.protocol import (
     load_protocol_text,
     match_detections,
     search_window_hz,
+    search_windows_hz,
 )
 from confirm_service.protocol.results import FAIL, INCONCLUSIVE, NOT_APPLICABLE, PASS, PENDING
 
@@ -186,12 +187,16 @@ def test_off_source_scans_are_searched_wide_at_any_drift(
     sky_fixed, default_protocol, physics_context
 ):
     """The same signal 60 Hz off the track in every off-source scan is not absent: the window
-    there spans +- (largest plausible drift x time since the reference + margin) (default.toml:
-    the intake limit, 10 Hz/s)."""
+    there spans +- (largest plausible drift x time from the nearest on-source scan + margin)
+    (default.toml: the intake limit, 10 Hz/s)."""
     facts = sky_fixed.facts
     off_scans = cadence_scans(facts, on_source=False)
-    t0 = facts.reference_observation.start_unix_s + facts.reference.time_offset_s
+    on_scans = [facts.reference_observation, *cadence_scans(facts, on_source=True)]
     for scan in off_scans:
+        gap_s = min(
+            max(abs(scan.end_unix_s - on.start_unix_s), abs(on.end_unix_s - scan.start_unix_s))
+            for on in on_scans
+        )
         low, high = search_window_hz(
             default_protocol,
             facts.reference,
@@ -200,7 +205,7 @@ def test_off_source_scans_are_searched_wide_at_any_drift(
             scan,
             physics_context,
         )
-        assert 0.5 * (high - low) >= 10.0 * (scan.end_unix_s - t0)
+        assert 0.5 * (high - low) >= 10.0 * gap_s
     everywhere = run(
         "on_off_cadence",
         _sixty_hz_off(facts, off_scans),
@@ -219,6 +224,50 @@ def test_off_source_scans_are_searched_wide_at_any_drift(
     )
     assert once.outcome == INCONCLUSIVE
     assert once.details["nearby_offsets_hz"][0] == pytest.approx(60.0, abs=10.0)
+
+
+def _off_window_hz(facts, protocol, scan, physics_context) -> float:
+    low, high = search_windows_hz(
+        protocol,
+        facts.reference,
+        facts.reference_observation,
+        facts.target,
+        [facts.reference_observation, *facts.observations],
+        physics_context,
+    )[scan.id]
+    return high - low
+
+
+def test_an_off_source_scan_is_searched_from_the_nearest_on_source_scan(
+    sky_fixed, default_protocol, physics_context
+):
+    """An off-source scan five days after the last on-source scan is searched over what a
+    drift of at most 10 Hz/s (default.toml's limit) could cover since the nearest on-source
+    scan: five days of drift (megahertz) while that scan is the nearest, a quarter of an hour's
+    once the target was observed again just before. Measuring from the reference alone gave
+    megahertz both times, and pulled a whole band of unrelated hits into every evaluation."""
+    facts = sky_fixed.facts
+    days_s = 5 * 86_400.0
+    last_on = max((o for o in facts.observations if o.on_source), key=lambda o: o.start_unix_s)
+    late_off = replace(
+        cadence_scans(facts, on_source=False)[-1],
+        id=801,
+        start_unix_s=last_on.start_unix_s + days_s,
+    )
+    alone = replace(facts, observations=(*facts.observations, late_off))
+    wide_hz = _off_window_hz(alone, default_protocol, late_off, physics_context)
+    assert wide_hz >= 2 * 10.0 * days_s
+    again_on = replace(last_on, id=802, start_unix_s=late_off.start_unix_s - 600.0)
+    observed_again = replace(alone, observations=(*alone.observations, again_on))
+    narrow_hz = _off_window_hz(
+        observed_again, default_protocol, physics_context=physics_context, scan=late_off
+    )
+    gap_s = late_off.end_unix_s - again_on.start_unix_s
+    track_hz = _off_window_hz(observed_again, default_protocol, again_on, physics_context)
+    assert (
+        2 * 10.0 * gap_s <= narrow_hz - track_hz < 2 * 12.0 * gap_s + 1_000.0
+    )  # D + E: 10 + 1.2 Hz/s at 8.7 GHz
+    assert narrow_hz < wide_hz / 50
 
 
 def test_partly_covering_scans_make_the_cadence_inconclusive(

@@ -11,9 +11,10 @@ Residual drift = observed drift - Earth drift at the detection's instant. Fails 
 per GHz). The comparison has power only where the Earth drift differs from the reference's by
 at least ``min_earth_drift_span_tolerances`` tolerances (tolerance = max(``tolerance_hz_s``,
 ``resolution_multiplier * sqrt(r_i^2 + r_0^2)``), r = drift resolution of each scan; reports use
-the reference's): with scans minutes apart at one site Earth's drift barely changes, so any
-drift would agree, and the check is ``not_applicable`` until such an observation exists. The
-observations that gave it power are listed in ``details["power_from"]``.
+the reference's; the rule's one home is ``protocol.drift_power``, which follow-up requests use
+to pick windows with power): with scans minutes apart at one site Earth's drift barely
+changes, so any drift would agree, and the check is ``not_applicable`` until such an
+observation exists. The observations that gave it power are listed in ``details["power_from"]``.
 
 With power, the check fails when a measurement's residual differs from the reference's by more
 than its tolerance. Measurements come from linked detections and partner sightings, and from
@@ -24,7 +25,6 @@ Pending until ``min_detections`` drift measurements (target scans and reports) e
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -39,6 +39,7 @@ from confirm_service.protocol.checks._base import (
     exactly_one_drift_limit,
     format_hz_s,
 )
+from confirm_service.protocol.drift_power import DEFAULT_RULE, rule_of
 from confirm_service.protocol.results import (
     FAIL,
     INCONCLUSIVE,
@@ -53,7 +54,7 @@ if TYPE_CHECKING:
     from confirm_service.protocol.matching import CandidateView
 
 KIND = "doppler_consistency"
-DEFAULT_SPAN_TOLERANCES = 3.0
+DEFAULT_SPAN_TOLERANCES = DEFAULT_RULE.power_tolerances
 
 
 class Params(CheckParams):
@@ -148,13 +149,15 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
             unit="Hz/s",
             details=details,
         )
-    tolerance = {e.label: _tolerance(params, e.resolution_hz_s, reference) for e in entries}
-    own_tolerance = _tolerance(params, reference.drift_resolution_hz_s, reference)
-    needed = params.min_earth_drift_span_tolerances
+    rule = rule_of(params)
+    r_ref = reference.drift_resolution_hz_s
+    tolerance = {e.label: rule.tolerance(e.resolution_hz_s, r_ref) for e in entries}
+    own_tolerance = rule.tolerance(r_ref, r_ref)
+    needed = rule.power_tolerances
     powered = [
         e
         for e in entries
-        if abs(e.earth_drift_hz_s - reference.earth_drift_hz_s) >= needed * tolerance[e.label]
+        if rule.has_power(e.earth_drift_hz_s - reference.earth_drift_hz_s, tolerance[e.label])
     ]
     details["power_from"] = [e.label for e in powered]
     details["power_threshold_hz_s"] = needed * own_tolerance
@@ -209,11 +212,6 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
         "different Earth drift).",
         **common,
     )
-
-
-def _tolerance(params: Params, resolution_hz_s: float, reference: Any) -> float:
-    combined = math.hypot(resolution_hz_s, reference.drift_resolution_hz_s)
-    return max(params.tolerance_hz_s, params.resolution_multiplier * combined)
 
 
 def _without_power(

@@ -7,8 +7,10 @@ A sighting is a linked detection in a target scan or a partner report on the tra
 passes when a sighting is at a site at least ``min_distance_km`` (straight line) from the
 reference site and from every site that saw the signal before it. It fails once scans or reports
 from sites that far from every site that has seen it covered the predicted window and saw
-nothing ``max_misses`` times (counting those ending after the reference scan began); it is
-pending until then.
+nothing in ``max_misses`` observing sessions (a site and a night; counting looks ending after
+the reference scan began); it is pending until then. A look that could not have seen the signal
+(target below the site's horizon limit, or expected SNR below the look's threshold) is recorded
+as not constraining and is no miss (``protocol.misses``).
 """
 
 from __future__ import annotations
@@ -17,6 +19,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from confirm_service.protocol.checks._base import CheckParams, PositiveFloat, PositiveInt
+from confirm_service.protocol.misses import Misses, judge_all, report_look, scan_look
 from confirm_service.protocol.results import FAIL, PASS, PENDING, CheckResult
 
 if TYPE_CHECKING:
@@ -80,47 +83,60 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
                 measured=distance,
                 expected=params.min_distance_km,
                 unit="km",
-                details={"sighting": sighting.label, "site": sighting.site.code},
+                details={
+                    "sighting": sighting.label,
+                    "site": sighting.site.code,
+                    "offset_hz": sighting.offset_hz,
+                },
             )
         if sighting.site not in seen_sites:
             seen_sites.append(sighting.site)
     misses = _misses(context, seen_sites, params.min_distance_km)
-    details = {"missed": misses, "sites_seen": [s.code for s in seen_sites]}
-    if len(misses) >= params.max_misses:
+    sessions = len(misses.sessions)
+    details = misses.details() | {"sites_seen": [s.code for s in seen_sites]}
+    if sessions >= params.max_misses:
         return CheckResult(
             KIND,
             FAIL,
             f"Sites at least {params.min_distance_km:g} km from every site that saw the signal "
-            f"covered the predicted frequency {len(misses)} time(s) and saw nothing.",
-            measured=float(len(misses)),
+            f"covered the predicted frequency in {sessions} observing session(s) and saw "
+            f"nothing.{misses.summary()}",
+            measured=float(sessions),
             expected=float(params.max_misses),
-            unit="scans",
+            unit="sessions",
             details=details,
         )
     return CheckResult(
         KIND,
         PENDING,
         f"Waiting for a site at least {params.min_distance_km:g} km away to observe "
-        f"({len(misses)} of {params.max_misses} allowed misses so far).",
+        f"({sessions} of {params.max_misses} allowed missed sessions so far).{misses.summary()}",
         details=details,
     )
 
 
-def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -> list[str]:
+def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -> Misses:
+    """Looks from far sites that covered the prediction and saw nothing, judged."""
     begin = context.reference_view.observation.start_unix_s
 
     def _far(context: CandidateView, site: SiteFact) -> bool:
         return _nearest_km(context, site, seen_sites) >= min_km
 
-    missed = []
+    looks = []
     for view in context.target_scans()[1:]:
         scan = view.observation
         ended_after = scan.end_unix_s >= begin
         if view.covers and not view.present and ended_after and _far(context, scan.site):
-            missed.append(f"scan {scan.id}")
-    for view in context.reports:
-        report = view.report
+            looks.append(scan_look(view))
+    width = context.reference_view.observation.channel_width_hz
+    for report_view in context.reports:
+        report = report_view.report
         ended_after = report.unix_s + report.duration_s >= begin
-        if view.covers and not view.present and ended_after and _far(context, report.site):
-            missed.append(f"report {report.id}")
-    return missed
+        if (
+            report_view.covers
+            and not report_view.present
+            and ended_after
+            and _far(context, report.site)
+        ):
+            looks.append(report_look(report_view, width))
+    return judge_all(context, looks)

@@ -1,10 +1,16 @@
-"""reobservation: seen again in a later on-source scan at the predicted frequency.
+"""reobservation: seen again in a later on-source look at the predicted frequency.
 
 A persistent transmitter on the sky is there again hours later, at the frequency the
 sky-fixed hypothesis predicts for that site and time (common practice, no source). Later means
 starting at least ``min_gap_hours`` after the reference detection; with ``same_site_only``
-only scans of the reference site count. Pending until such a scan exists; fails once
-``max_misses`` later on-source scans covered the predicted window and the signal was absent.
+only looks from the reference site count. A look is a later on-source scan of the target or a
+partner's report (a report carrying its scan counts once, through that scan; one without its
+scan counts as itself), so a report feeds this check and ``independent_site`` alike.
+
+Pending until such a look exists; fails once the signal was absent from looks that covered the
+predicted window in ``max_misses`` observing sessions (a site and a night). A look that could not
+have seen the signal (target below the site's horizon limit, or expected SNR below the look's
+threshold) is recorded as not constraining and is no miss (``protocol.misses``).
 """
 
 from __future__ import annotations
@@ -17,10 +23,11 @@ from confirm_service.protocol.checks._base import (
     PositiveInt,
     format_hours,
 )
+from confirm_service.protocol.misses import judge_all, report_look, scan_look
 from confirm_service.protocol.results import FAIL, PASS, PENDING, CheckResult
 
 if TYPE_CHECKING:
-    from confirm_service.protocol.facts import CandidateFacts
+    from confirm_service.protocol.facts import CandidateFacts, SiteFact
     from confirm_service.protocol.matching import CandidateView
 
 KIND = "reobservation"
@@ -35,50 +42,79 @@ class Params(CheckParams):
 
 
 def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> CheckResult:
-    """Look for the signal in later on-source scans."""
+    """Look for the signal in later on-source scans and partner reports."""
     reference = context.reference
     earliest = reference.unix_s + params.min_gap_hours * 3600.0
+
+    def _counts(site: SiteFact, start_unix_s: float) -> bool:
+        same_site = not params.same_site_only or site == reference.site
+        return start_unix_s >= earliest and same_site
+
     later = [
         v
         for v in context.target_scans()[1:]
-        if v.observation.start_unix_s >= earliest
-        and (not params.same_site_only or v.observation.site == reference.site)
+        if _counts(v.observation.site, v.observation.start_unix_s)
     ]
+    reports = [v for v in context.reports if _counts(v.report.site, v.report.unix_s)]
     present = [v for v in later if v.present]
-    misses = [v for v in later if v.covers and not v.present]
-    details = {
+    present_reports = [v for v in reports if v.present]
+    width = context.reference_view.observation.channel_width_hz
+    misses = judge_all(
+        context,
+        [scan_look(v) for v in later if v.covers and not v.present]
+        + [report_look(v, width) for v in reports if v.covers and not v.present],
+    )
+    missed = set(misses.labels)
+    details = misses.details() | {
         "later_scans": len(later),
+        "later_reports": len(reports),
         "present_scan_ids": [v.observation.id for v in present],
-        "missed_scan_ids": [v.observation.id for v in misses],
+        "present_report_ids": [v.report.id for v in present_reports],
+        "missed_scan_ids": [
+            v.observation.id for v in later if f"scan {v.observation.id}" in missed
+        ],
+        "missed_report_ids": [v.report.id for v in reports if f"report {v.report.id}" in missed],
     }
-    if present:
-        first = present[0]
-        gap_s = first.linked[0].unix_s - reference.unix_s
+    sightings = [
+        (d.unix_s, d.observation.site.code, d.offset_hz) for v in present for d in v.linked[:1]
+    ] + [
+        (
+            v.report.unix_s + v.report.time_offset_s,
+            v.report.site.code,
+            (v.report.frequency_hz or 0.0) - v.predicted_frequency_hz,
+        )
+        for v in present_reports
+    ]
+    if sightings:
+        unix_s, site_code, offset_hz = min(sightings)
+        gap_s = unix_s - reference.unix_s
         return CheckResult(
             KIND,
             PASS,
-            f"Seen again at {first.observation.site.code} {format_hours(gap_s)} after the "
-            f"reference, {first.linked[0].offset_hz:+.1f} Hz from the predicted frequency.",
+            f"Seen again at {site_code} {format_hours(gap_s)} after the reference, "
+            f"{offset_hz:+.1f} Hz from the predicted frequency.",
             measured=gap_s / 3600.0,
             expected=params.min_gap_hours,
             unit="h",
-            details=details | {"offset_hz": first.linked[0].offset_hz},
+            details=details | {"offset_hz": offset_hz},
         )
-    if len(misses) >= params.max_misses:
+    sessions = len(misses.sessions)
+    if sessions >= params.max_misses:
         return CheckResult(
             KIND,
             FAIL,
-            f"Absent from {len(misses)} on-source scan(s) at least {params.min_gap_hours:g} h "
-            "later that covered the predicted frequency.",
-            measured=float(len(misses)),
+            f"Absent from on-source looks at least {params.min_gap_hours:g} h later that covered "
+            f"the predicted frequency, in {sessions} observing session(s).{misses.summary()}",
+            measured=float(sessions),
             expected=float(params.max_misses),
-            unit="scans",
+            unit="sessions",
             details=details,
         )
     return CheckResult(
         KIND,
         PENDING,
-        f"Waiting for an on-source scan at least {params.min_gap_hours:g} h after the "
-        f"reference ({len(misses)} of {params.max_misses} allowed misses so far).",
+        f"Waiting for an on-source look at least {params.min_gap_hours:g} h after the "
+        f"reference ({sessions} of {params.max_misses} allowed missed sessions so far)."
+        f"{misses.summary()}",
         details=details,
     )
