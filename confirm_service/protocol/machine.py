@@ -37,6 +37,8 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from confirm_service.protocol.bands import BandSet, InterferenceBand, as_band_set
 from confirm_service.protocol.checks import get_check
 from confirm_service.protocol.facts import (
@@ -67,6 +69,13 @@ from confirm_service.protocol.results import (
     Transition,
 )
 from confirm_service.protocol.schema import ProtocolModel, StageModel
+from confirm_service.protocol.screening import (
+    Reason,
+    ScreeningRules,
+    code_of,
+    intake_codes,
+    swept_range_hz,
+)
 from confirm_service.protocol.signoffs import signoff_statuses, signoffs_met
 
 EVALUATION_CHUNK = 64
@@ -449,22 +458,24 @@ def intake_decision(
         return IntakeDecision(
             False, "The detection frequency lies outside the scan's band.", "outside_scan_band"
         )
-    if detection.snr < rule.min_snr:
+    rules = ScreeningRules.from_protocol(model)
+    f, drift = np.array([detection.frequency_hz]), np.array([detection.drift_hz_s])
+    code = int(intake_codes(rules, np.array([detection.snr]), f, drift)[0])
+    if code == code_of(Reason.LOW_SNR):
         return IntakeDecision(
             False,
-            f"SNR {detection.snr:.1f} is below the intake minimum {rule.min_snr:g}.",
+            f"SNR {detection.snr:.1f} is below the intake minimum {rules.min_snr:g}.",
             "low_snr",
         )
-    max_drift_hz_s = rule.max_abs_drift_at_hz_s(detection.frequency_hz)
-    if abs(detection.drift_hz_s) > max_drift_hz_s:
+    max_drift_hz_s = float(rules.drift_limit_hz_s(f)[0])
+    if code == code_of(Reason.DRIFT_OUT_OF_RANGE):
         return IntakeDecision(
             False,
             f"|drift| {abs(detection.drift_hz_s):.4f} Hz/s exceeds the intake maximum "
             f"{max_drift_hz_s:.4g} Hz/s.",
             "drift_out_of_range",
         )
-    excludes = rule.exclude_interference_bands and model.interference_band_action == "reject"
-    if excludes:
+    if rules.exclude_bands:
         hit = _band_hit(detection, observation, _bands(protocol, bands))
         if hit is not None:
             return IntakeDecision(
@@ -474,16 +485,18 @@ def intake_decision(
             )
     return IntakeDecision(
         True,
-        f"SNR {detection.snr:.1f} >= {rule.min_snr:g}, |drift| <= {max_drift_hz_s:.4g} Hz/s"
-        + (", outside listed bands." if excludes else "."),
+        f"SNR {detection.snr:.1f} >= {rules.min_snr:g}, |drift| <= {max_drift_hz_s:.4g} Hz/s"
+        + (", outside listed bands." if rules.exclude_bands else "."),
     )
 
 
 def _band_hit(
     detection: DetectionFact, observation: ObservationFact, bands: BandSet
 ) -> InterferenceBand | None:
-    f, drift = detection.frequency_hz, detection.drift_hz_s
-    a = f - drift * detection.time_offset_s
-    b = f + drift * (observation.duration_s - detection.time_offset_s)
-    hits = bands.overlapping(min(a, b), max(a, b))
+    """The first listed band the hit sweeps into over its scan, if any."""
+    start_hz = detection.frequency_hz - detection.drift_hz_s * detection.time_offset_s
+    low, high = swept_range_hz(
+        np.array([start_hz]), np.array([detection.drift_hz_s]), observation.duration_s
+    )
+    hits = bands.overlapping(float(low[0]), float(high[0]))
     return hits[0] if hits else None

@@ -343,17 +343,31 @@ def decided_digest(pairs: Sequence[tuple[int, str]]) -> str:
 # --- rules that need only the hit and its own scan ---------------------------------------------
 
 
+def intake_codes(
+    rules: ScreeningRules, snr: FloatArray, frequency_hz: FloatArray, drift_hz_s: FloatArray
+) -> IntArray:
+    """The intake thresholds, the one place they are compared: ``low_snr`` or
+    ``drift_out_of_range`` (the first that applies) per hit, 0 where the hit passes both."""
+    codes = np.zeros(np.shape(snr), dtype=np.int64)
+    _assign(codes, snr < rules.min_snr, Reason.LOW_SNR)
+    too_fast = np.abs(drift_hz_s) > rules.drift_limit_hz_s(frequency_hz)
+    _assign(codes, too_fast, Reason.DRIFT_OUT_OF_RANGE)
+    return codes
+
+
+def swept_range_hz(
+    start_frequency_hz: FloatArray, drift_hz_s: FloatArray, duration_s: float | FloatArray
+) -> tuple[FloatArray, FloatArray]:
+    """(low, high) Hz a hit covers over its scan, from its frequency at the scan's start."""
+    end = start_frequency_hz + drift_hz_s * duration_s
+    return np.minimum(start_frequency_hz, end), np.maximum(start_frequency_hz, end)
+
+
 def immediate_codes(scan: ScanHits, rules: ScreeningRules, bands: BandEdges) -> IntArray:
     """Rules 1-3 for every hit of an on-source scan (0 where none applies)."""
-    codes = np.zeros(scan.size, dtype=np.int64)
-    _assign(codes, scan.snr < rules.min_snr, Reason.LOW_SNR)
-    too_fast = np.abs(scan.drift_hz_s) > rules.drift_limit_hz_s(scan.frequency_hz)
-    _assign(codes, too_fast, Reason.DRIFT_OUT_OF_RANGE)
+    codes = intake_codes(rules, scan.snr, scan.frequency_hz, scan.drift_hz_s)
     if rules.exclude_bands:
-        end = scan.frequency_hz + scan.drift_hz_s * scan.duration_s
-        swept = bands.overlaps(
-            np.minimum(scan.frequency_hz, end), np.maximum(scan.frequency_hz, end)
-        )
+        swept = bands.overlaps(*swept_range_hz(scan.frequency_hz, scan.drift_hz_s, scan.duration_s))
         _assign(codes, swept, Reason.INTERFERENCE_BAND)
     if rules.zero_drift_resolutions is not None:
         limit = rules.zero_drift_resolutions * scan.resolution_hz_s
