@@ -339,6 +339,7 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     """Create a fresh SQLite database in ``folder`` and run the scenario through the API."""
     from confirm_service.actor import SYSTEM
     from confirm_service.app import create_app
+    from confirm_service.audit.checkpoints import set_up_signing_key
     from confirm_service.db import upgrade_database
     from confirm_service.services.tokens import create_token
 
@@ -349,6 +350,9 @@ def run_demo(folder: Path, say: Callable[[str], None]) -> DemoResult:
     upgrade_database(url)
     app = create_app({"database_url": url, "instance_path": folder})
     db = app.extensions["confirm.db"]
+    with db.read() as session:
+        key_file, _ = set_up_signing_key(session, app.extensions["confirm.settings"])
+    say(f"audit signing key: {key_file}")
     secrets = {}
     with db.write() as session:
         for name, role in [
@@ -589,9 +593,11 @@ def dashboard_sign_in(result: DemoResult, port: int = 8080) -> list[str]:
     folder = result.folder.resolve()
     return [
         "",
+        "every other command on this demo's log needs its instance (it holds the signing key):",
+        f"  export CONFIRM_DATABASE_URL={result.database_url}",
+        f"  export CONFIRM_INSTANCE_PATH={folder}",
         "web pages: start the server with",
-        f"  CONFIRM_DATABASE_URL={result.database_url} CONFIRM_INSTANCE_PATH={folder} "
-        f"confirm-service serve --port {port}",
+        f"  confirm-service serve --port {port}",
         f"then open http://127.0.0.1:{port}/dashboard and sign in as",
         *(f"  {name:<17} password {passwords[name]}  ({role})" for name, role in DEMO_PEOPLE),
     ]

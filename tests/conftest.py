@@ -101,9 +101,12 @@ def database_url(backend: str, tmp_path: Path) -> str:
 @pytest.fixture
 def app(database_url: str, tmp_path: Path) -> Iterator[Any]:
     from confirm_service.app import create_app
+    from confirm_service.audit.checkpoints import set_up_signing_key
 
     application = create_app({"database_url": database_url, "instance_path": tmp_path / "instance"})
     application.config["TESTING"] = True
+    with application.extensions["confirm.db"].read() as session:  # set-up, as `db upgrade` does
+        set_up_signing_key(session, application.extensions["confirm.settings"])
     yield application
     application.extensions["confirm.db"].dispose()
 

@@ -57,6 +57,7 @@ def test_a_restored_backup_passes_audit_verify(database_url, empty_target, tmp_p
         "CONFIRM_INSTANCE_PATH": str(tmp_path / "instance"),
     }
     for args in (
+        ["db", "upgrade"],  # set-up: the instance's signing key
         ["token", "create", "--name", "ops", "--role", "coordinator"],
         ["audit", "checkpoint", "--reason", "before backup"],
         ["token", "create", "--name", "pipeline-east", "--role", "pipeline"],

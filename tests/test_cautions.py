@@ -61,6 +61,5 @@ def test_no_module_or_template_spells_the_caution_out_again() -> None:
 
 
 def test_prediction_notes_build_on_the_one_text() -> None:
-    assert cautions.NOT_A_DETECTION in predictions.CAUTION
     assert cautions.SITE_SAFETY in predictions.VISIBILITY_CAUTION
     assert cautions.CANDIDATE_IS_NOT_A_DETECTION.startswith(cautions.NOT_A_DETECTION)

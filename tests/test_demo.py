@@ -25,5 +25,8 @@ def test_demo_runs_the_whole_service(tmp_path):
     assert "verified offline" in out
     assert len(list(folder.glob("dossier-*/index.html"))) == 1
     assert "not a detection" in out and "post-detection principles" in out
+    # the instance holding the signing key is named, to export before any other command
+    assert (folder / "audit-signing-key.pem").is_file()
+    assert f"export CONFIRM_INSTANCE_PATH={folder.resolve()}" in out
     again = CliRunner().invoke(main, ["demo", "--dir", str(folder)])
     assert again.exit_code == 2 and "exists" in again.output

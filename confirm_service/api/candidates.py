@@ -1,4 +1,4 @@
-"""Candidates: list, get, explicit promotion, withdrawal, comments."""
+"""Candidates: list, get, explicit promotion, decisions and their reopening, comments."""
 
 from __future__ import annotations
 
@@ -23,6 +23,7 @@ from confirm_service.schemas.candidates import (
     DecisionIn,
     HoldReleaseIn,
     PromoteIn,
+    ReopenIn,
     ReportIn,
     ReportOut,
     SignOffIn,
@@ -171,6 +172,40 @@ def release_hold(candidate_id: int) -> Response:
     data = parse_body(HoldReleaseIn)
     with database().write() as session:
         decisions.release_hold(session, current_actor(), candidate_id, data.rationale)
+    return _detail_after_commit(candidate_id)
+
+
+@bp.post("/<int:candidate_id>/reopen")
+@documented(
+    "Reopen a rejected candidate with a rationale; it is re-evaluated under its protocol, the "
+    "checks that failed then hold it for a person instead of rejecting it",
+    request=ReopenIn,
+    response=CandidateOut,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles(*access.REOPEN)
+def reopen(candidate_id: int) -> Response:
+    data = parse_body(ReopenIn)
+    with database().write() as session:
+        decisions.reopen(session, current_actor(), candidate_id, data.rationale)
+    return _detail_after_commit(candidate_id)
+
+
+@bp.post("/<int:candidate_id>/retract")
+@documented(
+    "Retract a person's decision (rejected or withdrawn) with a rationale; the candidate is "
+    "open again and re-evaluated under its protocol",
+    request=ReopenIn,
+    response=CandidateOut,
+    error_statuses=(401, 403, 404, 409, 415, 422),
+    tag="candidates",
+)
+@roles(*access.REOPEN)
+def retract(candidate_id: int) -> Response:
+    data = parse_body(ReopenIn)
+    with database().write() as session:
+        decisions.retract(session, current_actor(), candidate_id, data.rationale)
     return _detail_after_commit(candidate_id)
 
 

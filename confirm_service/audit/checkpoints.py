@@ -8,6 +8,7 @@ checkpoint, so a rewritten history never gets a fresh signature from the service
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Any
 
 from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
@@ -18,13 +19,14 @@ from confirm_service.audit import store
 from confirm_service.audit.merkle import EMPTY_ROOT, MerkleAccumulator
 from confirm_service.audit.signing import (
     Checkpoint,
+    generate_key,
     key_id,
-    load_or_create_private_key,
+    load_private_key,
     public_key_pem,
     sign_checkpoint,
     utc_timestamp,
 )
-from confirm_service.config import Settings
+from confirm_service.config import ConfigError, Settings
 from confirm_service.errors import Invalid
 from confirm_service.models import AuditCheckpoint
 from confirm_service.timeutil import utc_now
@@ -36,9 +38,51 @@ MAX_REASON_CHARS = 64
 SIGNATURE_ALGORITHM = "Ed25519"
 
 
+WHERE_THE_KEY_IS = (
+    "set CONFIRM_INSTANCE_PATH (or CONFIRM_SIGNING_KEY_FILE) to the instance that holds it"
+)
+
+
 def signing_key(settings: Settings) -> Ed25519PrivateKey:
-    """The instance's checkpoint key, created (mode 0600) on first use."""
-    return load_or_create_private_key(settings.resolved_signing_key_file())
+    """The instance's checkpoint key. Only set-up creates one (:func:`set_up_signing_key`): a key
+    made on the fly by a command run from another folder would sign checkpoints the log's
+    verifiers cannot check."""
+    path = settings.resolved_signing_key_file()
+    try:
+        return load_private_key(path)
+    except FileNotFoundError:
+        raise ConfigError(
+            f"no audit signing key at {path}: {WHERE_THE_KEY_IS}; "
+            "a new instance is set up by `confirm-service db upgrade`"
+        ) from None
+    except ValueError as exc:
+        raise ConfigError(f"audit signing key {path} unusable: {exc}") from None
+
+
+def set_up_signing_key(
+    session: Session, settings: Settings, replacing: bool = False
+) -> tuple[Path, bool]:
+    """Set-up only: create the instance's key (mode 0600) if it has none.
+
+    Returns ``(path, created)``. Unless ``replacing`` (a deliberate key rotation, see
+    docs/operations.md), refuses (:class:`ConfigError`) when the key is missing but the log
+    already has checkpoints: they were signed by a key kept elsewhere, and a new one would make
+    the log unverifiable.
+    """
+    path = settings.resolved_signing_key_file()
+    if path.exists():
+        return path, False
+    previous = latest_checkpoint(session)
+    if previous is not None and not replacing:
+        raise ConfigError(
+            f"no audit signing key at {path}, and this log's checkpoints are signed by key "
+            f"{previous.key_id}: {WHERE_THE_KEY_IS}"
+        )
+    try:
+        generate_key(path)
+    except FileExistsError:  # another set-up created it meanwhile
+        return path, False
+    return path, True
 
 
 def service_public_key(settings: Settings) -> tuple[str, str]:

@@ -18,7 +18,7 @@ import click
 
 COMMANDS: dict[str, tuple[str, str]] = {
     "audit": ("audit", "The tamper-evident audit log (RFC 6962 tree, signed checkpoints)."),
-    "candidates": ("candidates", "Candidates under confirmation: list, search, show."),
+    "candidates": ("candidates", "Candidates under confirmation: list, show, reopen, retract."),
     "db": ("database", "Database schema."),
     "demo": ("demo", "Run an invented scenario on a fresh SQLite database."),
     "dossier": ("dossier", "Write a candidate's dossier, or verify one offline."),

@@ -1,4 +1,4 @@
-"""``confirm-service candidates list|show``: readable tables for coordinators."""
+"""``confirm-service candidates list|show|reopen|retract``: tables and decisions."""
 
 from __future__ import annotations
 
@@ -70,7 +70,10 @@ def list_candidates(**filters: object) -> None:
 @candidates_group.command("show")
 @click.argument("candidate_id", type=int)
 def show(candidate_id: int) -> None:
-    """Everything about one candidate: checks with measured and expected values, history."""
+    """Everything about one candidate: checks with measured and expected values, history.
+
+    A read: the caution is shown where a decision is made (reopen, retract, the decision screen,
+    the dossier), not here."""
     database = open_database()
     with database.read() as session:
         c = views.detail(session, candidate_id)
@@ -115,5 +118,38 @@ def show(candidate_id: int) -> None:
             f"  sign-off {s.stage}: {s.person} ({s.role}) "
             f"{'approves' if s.approve else 'objects'}: {s.rationale}"
         )
-    click.echo("")
+
+
+def _reopen_command(verb: str, candidate_id: int, rationale: str) -> None:
+    """``reopen`` or ``retract``, as the API does; prints the state the re-evaluation left."""
+    from confirm_service.cli.context import cli_actor, validated
+    from confirm_service.schemas.candidates import ReopenIn
+    from confirm_service.services import decisions
+
+    data = validated(ReopenIn, {"rationale": rationale})
+    database = open_database()
+    act = decisions.reopen if verb == "reopen" else decisions.retract
+    with database.write() as session:
+        act(session, cli_actor("coordinator"), candidate_id, data.rationale)
+    with database.read() as session:
+        c = views.detail(session, candidate_id)
+    click.echo(f"candidate {c.id}: {c.state} at stage {c.stage!r}")
+    if c.held:
+        click.echo(f"HELD: {c.hold_reason}")
     click.echo("CAUTION: " + CANDIDATE_IS_NOT_A_DETECTION)
+
+
+@candidates_group.command("reopen")
+@click.argument("candidate_id", type=int)
+@click.option("--rationale", required=True, help="Why the rejection is reopened (audited).")
+def reopen(candidate_id: int, rationale: str) -> None:
+    """Reopen a rejected candidate; it is re-evaluated, its failed checks then hold it."""
+    _reopen_command("reopen", candidate_id, rationale)
+
+
+@candidates_group.command("retract")
+@click.argument("candidate_id", type=int)
+@click.option("--rationale", required=True, help="Why the decision is retracted (audited).")
+def retract(candidate_id: int, rationale: str) -> None:
+    """Retract a person's decision (rejected or withdrawn); the candidate is re-evaluated."""
+    _reopen_command("retract", candidate_id, rationale)

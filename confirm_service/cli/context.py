@@ -56,6 +56,13 @@ def open_database(require_schema: bool = True) -> Database:
     return Database(url)
 
 
+def require_signing_key() -> None:
+    """Refuse (one line, exit 2) to start a long-running command without the instance's key."""
+    from confirm_service.audit.checkpoints import signing_key
+
+    signing_key(settings())
+
+
 def validated(model: Any, data: dict[str, Any], writes: bool = True) -> Any:
     """``data`` as the pydantic ``model`` (the API's request schema); a refusal names each
     field and exits with status 2, nothing written."""

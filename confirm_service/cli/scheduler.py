@@ -8,7 +8,7 @@ from datetime import datetime
 import click
 
 from confirm_service.cli import main
-from confirm_service.cli.context import open_database, settings
+from confirm_service.cli.context import open_database, require_signing_key, settings
 from confirm_service.timeutil import require_aware_utc, utc_now
 
 
@@ -22,6 +22,7 @@ def run() -> None:
     """Run the scheduler in the foreground until interrupted (waits while another leads)."""
     from confirm_service.scheduler import run_scheduler
 
+    require_signing_key()
     run_scheduler(open_database(), settings())
 
 

@@ -7,7 +7,7 @@ import os
 import click
 
 from confirm_service.cli import main
-from confirm_service.cli.context import open_database, settings
+from confirm_service.cli.context import open_database, require_signing_key, settings
 
 
 @main.command("serve")
@@ -18,6 +18,7 @@ from confirm_service.cli.context import open_database, settings
 def serve(host: str, port: int, use_gunicorn: bool, workers: int) -> None:
     """Serve the API. Without --gunicorn, Flask's development server."""
     open_database().dispose()  # refuse to start on an unreachable or empty database
+    require_signing_key()  # ... or without the instance's audit signing key
     if use_gunicorn:
         argv = [
             "gunicorn",

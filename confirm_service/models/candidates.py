@@ -36,6 +36,8 @@ class Candidate(Base):
     held: Mapped[bool] = mapped_column(Boolean, default=False)
     hold_reason: Mapped[str | None] = mapped_column(Text)
     hold_released: Mapped[bool] = mapped_column(Boolean, default=False)
+    overruled_checks: Mapped[list[str] | None] = mapped_column(JSON)
+    """Check kinds whose automatic rejection a person overruled by reopening the candidate."""
     reason_class: Mapped[str | None] = mapped_column(String(64))
     reason: Mapped[str | None] = mapped_column(Text)
     origin: Mapped[str] = mapped_column(String(16), default="intake")

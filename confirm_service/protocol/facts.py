@@ -143,6 +143,9 @@ class CandidateFacts:
     site and time, and other pointings or beams overlapping the candidate's scans in time.
     ``manual_hold_released`` is set by a person who reviewed the current holds and lets the
     candidate continue; the service should clear it when the stage changes.
+    ``overruled_checks`` names the check kinds whose automatic rejection a person overruled by
+    reopening the candidate: a failure of one of them holds the candidate for a person instead
+    of rejecting it again.
     """
 
     candidate_id: int
@@ -157,6 +160,7 @@ class CandidateFacts:
     state: str
     stage_entered_unix_s: float
     manual_hold_released: bool = False
+    overruled_checks: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         if self.state not in CANDIDATE_STATES:

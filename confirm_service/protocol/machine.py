@@ -13,7 +13,8 @@ Semantics (deterministic: "now" is ``facts.now_unix_s``; no clocks, no randomnes
   candidate whatever its ``on_fail``: an automatic decision never rests on such data. A person
   who reviewed it sets ``manual_hold_released``; released holds neither hold nor block
   advancement. A person with a required role whose latest sign-off for the stage is a refusal
-  also holds the candidate.
+  also holds the candidate. A check whose rejection a person overruled (the candidate was
+  reopened, ``facts.overruled_checks``) holds instead of rejecting.
 * The candidate leaves its stage when every check of the stage passed (or is not applicable,
   or is a released hold), it is not held, and each sign-off rule of ``protocol.signoffs`` is
   met. It then enters the next stage at ``now`` (its ``on_entry`` actions are emitted) and the
@@ -119,7 +120,10 @@ def _run_check(
     stage: StageModel, spec: Any, facts: CandidateFacts, view: CandidateView
 ) -> CheckResult:
     result = get_check(spec.kind).evaluate(facts, spec, view)
-    return result.with_origin(stage.name, spec.on_fail, spec.reason_class)
+    on_fail = spec.on_fail
+    if on_fail == "reject" and spec.kind in facts.overruled_checks:
+        on_fail = "hold"  # a person overruled this check's rejection: it holds for a person now
+    return result.with_origin(stage.name, on_fail, spec.reason_class)
 
 
 def evaluate(

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, StringConstraints
 
 from confirm_service.schemas.bounds import RowId
 from confirm_service.schemas.common import StrictModel, UtcIso
@@ -163,3 +163,15 @@ class DecisionIn(StrictModel):
 
 class HoldReleaseIn(StrictModel):
     rationale: Text
+
+
+Rationale = Annotated[
+    str, StringConstraints(strip_whitespace=True, min_length=1, max_length=10_000)
+]
+
+
+class ReopenIn(StrictModel):
+    """Why a coordinator reopens a rejected candidate or retracts a person's decision
+    (required, not blank; kept in the audit record)."""
+
+    rationale: Rationale

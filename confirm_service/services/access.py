@@ -16,5 +16,6 @@ SIGNOFF = SIGNOFF_ROLES
 COMMENT = ("coordinator", "site")
 DECIDE = ("coordinator",)
 RELEASE_HOLD = ("coordinator",)
+REOPEN = ("coordinator",)
 REPORT = ("site", "coordinator")
 CHECKPOINT = ("coordinator",)

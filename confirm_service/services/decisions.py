@@ -1,23 +1,24 @@
-"""What people do to candidates: sign-offs, decisions, holds released, comments.
+"""What people do to candidates: sign-offs, decisions, holds released, comments, reopening.
 
-A final state set by a person is pinned to a signed audit checkpoint.
+A final state set by a person, and a reopening, is pinned to a signed audit checkpoint.
 """
 
 from __future__ import annotations
 
-from sqlalchemy import or_, select
+from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import Conflict, Forbidden, Invalid, NotFound
-from confirm_service.models import Candidate, Comment, SignOff
+from confirm_service.models import Candidate, CheckResult, Comment, SignOff
 from confirm_service.services.evaluation import (
     locked_candidate,
     reevaluate,
     take_decision_checkpoint,
 )
 from confirm_service.services.history import add_history
+from confirm_service.timeutil import utc_now
 
 
 def _require_open(candidate: Candidate) -> None:
@@ -157,4 +158,95 @@ def release_hold(session: Session, actor: Actor, candidate_id: int, rationale: s
         {"stage": candidate.stage, "rationale": rationale},
     )
     reevaluate(session, actor, candidate)
+    return candidate
+
+
+def reopen(session: Session, actor: Actor, candidate_id: int, rationale: str) -> Candidate:
+    """A coordinator reopens a rejected candidate (by a check or by a person), with a rationale.
+
+    The candidate is open again at the stage it was rejected in, and re-evaluated under its
+    protocol at once; the checks failing at reopening hold it for a person from then on
+    instead of rejecting it again (see ``CandidateFacts.overruled_checks``).
+    """
+    candidate = locked_candidate(session, candidate_id)
+    if candidate.state != "rejected":
+        raise Conflict(
+            f"candidate {candidate.id} is {candidate.state}, not rejected",
+            [("state", f"only a rejected candidate can be reopened; it is {candidate.state}")],
+        )
+    return _back_to_open(session, actor, candidate, rationale, "reopened")
+
+
+def retract(session: Session, actor: Actor, candidate_id: int, rationale: str) -> Candidate:
+    """A coordinator retracts a person's decision (``rejected`` or ``withdrawn``), with a
+    rationale; the candidate is open again and re-evaluated under its protocol at once."""
+    candidate = locked_candidate(session, candidate_id)
+    if candidate.state not in ("rejected", "withdrawn") or candidate.reason_class != "person":
+        raise Conflict(
+            f"candidate {candidate.id} carries no decision of a person to retract",
+            [
+                (
+                    "state",
+                    f"it is {candidate.state} ({candidate.reason_class or 'by the protocol'}); "
+                    "a rejection by a check is reopened instead",
+                )
+            ],
+        )
+    return _back_to_open(session, actor, candidate, rationale, "retracted")
+
+
+def _failing_check_kinds(session: Session, candidate_id: int) -> set[str]:
+    """Kinds whose latest recorded result for the candidate is a failure."""
+    latest = (
+        select(func.max(CheckResult.id))
+        .where(CheckResult.candidate_id == candidate_id)
+        .group_by(CheckResult.kind)
+    )
+    rows = session.execute(
+        select(CheckResult.kind).where(CheckResult.id.in_(latest), CheckResult.outcome == "fail")
+    )
+    return set(rows.scalars())
+
+
+def _back_to_open(
+    session: Session, actor: Actor, candidate: Candidate, rationale: str, verb: str
+) -> Candidate:
+    """Open a closed candidate again (audited, pinned to a checkpoint) and re-evaluate it."""
+    rationale = rationale.strip()
+    if not rationale:
+        raise Invalid("a rationale is required", [("rationale", "must not be blank")])
+    overruled = sorted(
+        set(candidate.overruled_checks or ()) | _failing_check_kinds(session, candidate.id)
+    )
+    add_history(
+        session,
+        actor,
+        candidate.id,
+        (candidate.stage, candidate.stage),
+        (candidate.state, "open"),
+        rationale,
+        verb,
+    )
+    record(
+        session,
+        actor,
+        f"candidate.{verb}",
+        f"candidate:{candidate.id}",
+        {
+            "stage": candidate.stage,
+            "from_state": candidate.state,
+            "rationale": rationale,
+            "overruled_checks": overruled,
+        },
+    )
+    candidate.state = "open"
+    candidate.reason = rationale
+    candidate.reason_class = verb
+    candidate.overruled_checks = overruled
+    candidate.stage_entered_at = utc_now()  # the stage starts afresh: its deadline too
+    candidate.hold_released = False
+    candidate.decision_checkpoint_size = None
+    session.flush()
+    reevaluate(session, actor, candidate)
+    take_decision_checkpoint(session, candidate, f"candidate {candidate.id} {verb}")
     return candidate

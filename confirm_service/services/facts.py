@@ -344,4 +344,5 @@ def candidate_facts(
         state=candidate.state,
         stage_entered_unix_s=candidate.stage_entered_at.timestamp(),
         manual_hold_released=candidate.hold_released,
+        overruled_checks=tuple(candidate.overruled_checks or ()),
     )

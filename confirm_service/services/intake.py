@@ -205,11 +205,17 @@ def _already_followed(detection_id: int, holder: Candidate, linked: bool) -> Con
     """The answer to promoting a hit of an existing candidate: which one, and what to do."""
     how = "is linked to" if linked else "lies on the predicted track of"
     where = f"/api/v1/candidates/{holder.id}"
-    action = (
-        f"see {where}"
-        if holder.state == "open"
-        else f"it is {holder.state}, decided as recorded at {where}"
-    )
+    if holder.state == "open":
+        action = f"see {where}"
+    elif holder.state == "rejected":
+        action = f"it is rejected; a coordinator can reopen it: POST {where}/reopen"
+    elif holder.reason_class == "person":
+        action = (
+            f"it is {holder.state} by a person's decision; a coordinator can retract it: "
+            f"POST {where}/retract"
+        )
+    else:
+        action = f"it is {holder.state}, as recorded at {where}"
     return Conflict(
         f"detection {detection_id} {how} candidate {holder.id} ({action})",
         [("detection_id", f"already followed as candidate {holder.id}: {action}")],

@@ -13,7 +13,7 @@ from contextlib import contextmanager
 from datetime import datetime, timedelta
 from typing import Any
 
-from confirm_service.cautions import NOT_A_DETECTION, SITE_SAFETY
+from confirm_service.cautions import SITE_SAFETY
 from confirm_service.physics import (
     MODEL_DESCRIPTION,
     PhysicsInputError,
@@ -39,10 +39,6 @@ from confirm_service.schemas.predictions import (
 
 __all__ = ["compute_prediction", "compute_visibility", "window_result"]
 
-CAUTION = (
-    "A signal found where predicted supports the hypothesis of a sky-fixed transmitter; it is "
-    f"not a detection. {NOT_A_DETECTION}"
-)
 VISIBILITY_CAUTION = f"Geometry only (no refraction). {SITE_SAFETY}"
 MAX_VISIBILITY_DAYS = 400.0
 
@@ -149,7 +145,7 @@ def compute_prediction(
             barycentric_frequency_hz=float(barycentric_frequency_hz(frequency, velocity)),
             residual_drift_hz_s=None if drift is None else drift - earth,
             ephemeris=_ephemeris_name(),
-            notes=[CAUTION],
+            notes=[],
         )
     return _with_prediction(
         location, target, when, time, frequency, drift, sigma_f, sigma_drift, to_site, to_time, echo
@@ -183,7 +179,7 @@ def _with_prediction(
     )
     with _fields(unix_s="time", to_unix_s="to_time", frequency_hz="observed_frequency_hz"):
         prediction = predict_signal(measurement, target, to_location, float(to_when.unix))
-    notes = [CAUTION]
+    notes: list[str] = []
     if drift is None:
         notes.append("No drift given: residual drift taken as 0 (constant barycentric frequency).")
     gap = float((to_when - when).to_value("s"))

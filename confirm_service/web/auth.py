@@ -45,6 +45,7 @@ SIGNOFF_ROLES = access.SIGNOFF
 COMMENT_ROLES = access.COMMENT
 DECISION_ROLES = access.DECIDE
 HOLD_ROLES = access.RELEASE_HOLD
+REOPEN_ROLES = access.REOPEN
 
 
 # --- the key that signs session cookies ------------------------------------------------------

@@ -24,7 +24,7 @@ from flask.blueprints import BlueprintSetupState
 from werkzeug.exceptions import HTTPException
 
 from confirm_service.actor import Actor
-from confirm_service.cautions import CANDIDATE_IS_NOT_A_DETECTION, SITE_SAFETY
+from confirm_service.cautions import SITE_SAFETY
 from confirm_service.db import Database
 from confirm_service.errors import ServiceError
 from confirm_service.timeutil import mjd_utc
@@ -121,7 +121,6 @@ def _template_helpers() -> dict[str, Any]:
         "csrf_token": auth.csrf_token,
         "csrf_field": auth.CSRF_FIELD,
         "actor": actor_or_none(),
-        "caution": CANDIDATE_IS_NOT_A_DETECTION,
         "site_safety": SITE_SAFETY,
         "main_pages": PAGES,
     }

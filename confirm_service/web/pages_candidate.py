@@ -10,7 +10,13 @@ from flask import Response, current_app, render_template, url_for
 from sqlalchemy.orm import Session
 
 from confirm_service.actor import Actor
-from confirm_service.schemas.candidates import CommentIn, DecisionIn, HoldReleaseIn, SignOffIn
+from confirm_service.schemas.candidates import (
+    CommentIn,
+    DecisionIn,
+    HoldReleaseIn,
+    ReopenIn,
+    SignOffIn,
+)
 from confirm_service.services import attention, candidate_views, observing_views
 from confirm_service.services import decisions as decision_service
 from confirm_service.timeutil import utc_now
@@ -23,14 +29,25 @@ FORM_FIELDS = {
     "decision": ("decision", "rationale"),
     "hold": ("rationale",),
     "comment": ("text",),
+    "reopen": ("rationale",),
+    "retract": ("rationale",),
 }
-LANDING = {"signoff": "signoffs", "decision": "summary", "hold": "summary", "comment": "comments"}
+LANDING = {
+    "signoff": "signoffs",
+    "decision": "summary",
+    "hold": "summary",
+    "comment": "comments",
+    "reopen": "summary",
+    "retract": "summary",
+}
 """Where the page opens after each form succeeds: the section showing what was recorded."""
 FORM_TITLES = {
     "signoff": "Sign-off",
     "decision": "Decision",
     "hold": "Release of the hold",
     "comment": "Comment",
+    "reopen": "Reopening",
+    "retract": "Retraction",
 }
 VERDICTS = {"approve": True, "object": False}
 PLOT_NAMES = ("frequency", "drift", "elevation")
@@ -98,9 +115,21 @@ def render_candidate(
             "decide": auth.may(actor, auth.DECISION_ROLES),
             "hold": auth.may(actor, auth.HOLD_ROLES),
             "comment": auth.may(actor, auth.COMMENT_ROLES),
+            "reopen": auth.may(actor, auth.REOPEN_ROLES),
         },
+        reopening=_reopening(record),
     )
     return page, status
+
+
+def _reopening(record: Any) -> str | None:
+    """Which way a closed candidate can be opened again: ``reopen`` a rejection, ``retract`` a
+    person's withdrawal; None when open or passed (the service holds the rule and refuses)."""
+    if record.state == "rejected":
+        return "reopen"
+    if record.state == "withdrawn" and record.reason_class == "person":
+        return "retract"
+    return None
 
 
 @bp.get("/candidates/<int:candidate_id>")
@@ -192,6 +221,36 @@ def release_hold(candidate_id: int) -> Any:
         return "The hold was released and the candidate re-evaluated."
 
     return _submit(candidate_id, "hold", validated, act)
+
+
+@bp.post("/candidates/<int:candidate_id>/reopen")
+@auth.requires_role(*auth.REOPEN_ROLES)
+def reopen(candidate_id: int) -> Any:
+    """Reopen a rejected candidate with a rationale; it is re-evaluated at once."""
+    values = typed(FORM_FIELDS["reopen"])
+    validated = validate("reopen", FORM_FIELDS["reopen"], ReopenIn, values, values, {})
+
+    def act(session: Session, actor: Actor, body: ReopenIn) -> str:
+        candidate = decision_service.reopen(session, actor, candidate_id, body.rationale)
+        return f"The candidate was reopened and re-evaluated: it is {candidate.state}."
+
+    return _submit(candidate_id, "reopen", validated, act)
+
+
+@bp.post("/candidates/<int:candidate_id>/retract")
+@auth.requires_role(*auth.REOPEN_ROLES)
+def retract(candidate_id: int) -> Any:
+    """Retract a person's decision with a rationale; the candidate is re-evaluated at once."""
+    values = typed(FORM_FIELDS["retract"])
+    validated = validate("retract", FORM_FIELDS["retract"], ReopenIn, values, values, {})
+
+    def act(session: Session, actor: Actor, body: ReopenIn) -> str:
+        candidate = decision_service.retract(session, actor, candidate_id, body.rationale)
+        return (
+            f"The decision was retracted and the candidate re-evaluated: it is {candidate.state}."
+        )
+
+    return _submit(candidate_id, "retract", validated, act)
 
 
 @bp.post("/candidates/<int:candidate_id>/comments")

@@ -34,6 +34,8 @@ EXPECTED_ROLES = {
     ("POST", "/api/v1/candidates/<int:candidate_id>/signoffs"): {"coordinator", "site", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/decision"): {"coordinator", "admin"},
     ("POST", "/api/v1/candidates/<int:candidate_id>/release-hold"): {"coordinator", "admin"},
+    ("POST", "/api/v1/candidates/<int:candidate_id>/reopen"): {"coordinator", "admin"},
+    ("POST", "/api/v1/candidates/<int:candidate_id>/retract"): {"coordinator", "admin"},
     ("GET", "/api/v1/candidates/<int:candidate_id>/dossier"): ALL,
     ("POST", "/api/v1/candidates/<int:candidate_id>/reports"): {"site", "coordinator", "admin"},
     ("GET", "/api/v1/predictions"): ALL,

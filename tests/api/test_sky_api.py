@@ -172,6 +172,8 @@ def test_cli_predict_table_without_database():
     )
     assert result.exit_code == 0, result.output
     assert "barycentric frequency" in result.stdout and "Hz" in result.stdout
+    # a prediction is a read: no caution here (it is shown where a decision is made, once)
+    assert "not a detection" not in result.stdout and "post-detection" not in result.stdout
     naive = CliRunner().invoke(
         main,
         [

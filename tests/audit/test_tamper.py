@@ -312,6 +312,8 @@ def pristine(backend, tmp_path_factory) -> Iterator[tuple[Log, dict]]:
         for table in reversed(AUDIT_TABLES):
             connection.execute(table.delete())
         connection.execute(AuditHead.__table__.insert(), [{"id": 1, "size": 0}])
+    with db.read() as session:
+        checkpoints.set_up_signing_key(session, settings)
     build_log(db, settings)
     with db.engine.connect() as connection:
         snapshot = {

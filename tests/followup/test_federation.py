@@ -17,6 +17,8 @@ from pathlib import Path
 from typing import Any
 
 from confirm_service.actor import SYSTEM
+from confirm_service.audit.checkpoints import set_up_signing_key
+from confirm_service.config import load_settings
 from confirm_service.db import Database, upgrade_database
 from confirm_service.demo import SITES, TARGETS, SkyFixedSignal, first_window, scenario_scans
 from confirm_service.followup import signing
@@ -52,6 +54,9 @@ class Instance:
         }
         upgrade_database(self.database_url)
         self.db = Database(self.database_url)
+        settings = load_settings({"database_url": self.database_url, "instance_path": folder})
+        with self.db.read() as session:  # set-up, as `db upgrade` does: the signing key
+            set_up_signing_key(session, settings)
         self.tokens: dict[str, str] = {}
         with self.db.write() as session:
             for role in ("coordinator", "pipeline"):
