@@ -32,6 +32,7 @@ from sqlalchemy import event, insert, text
 from benchmarks.bench_mixed_load import fresh_postgres
 from confirm_service.actor import SYSTEM
 from confirm_service.app import create_app
+from confirm_service.audit.checkpoints import set_up_signing_key
 from confirm_service.db import upgrade_database
 from confirm_service.demo import SITES, TARGETS, first_window
 from confirm_service.models import Detection, Observation
@@ -49,6 +50,8 @@ class Service:
         folder = Path(tempfile.mkdtemp(prefix="bench-growth-"))
         self.app = create_app({"database_url": url, "instance_path": folder, "request_log": "off"})
         self.db = self.app.extensions["confirm.db"]
+        with self.db.read() as session:  # set-up, as `confirm-service db upgrade` does
+            set_up_signing_key(session, self.app.extensions["confirm.settings"])
         with self.db.write() as session:
             _, pipeline = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
             _, viewer = create_token(session, SYSTEM, "bench-viewer", "viewer")

@@ -38,6 +38,7 @@ from sqlalchemy.engine import make_url
 
 from confirm_service.actor import SYSTEM
 from confirm_service.app import create_app
+from confirm_service.audit.checkpoints import set_up_signing_key
 from confirm_service.db import upgrade_database
 from confirm_service.demo import SITES, TARGETS, first_window
 from confirm_service.services.tokens import create_token
@@ -64,6 +65,8 @@ def prepare(url: str, instance: Path) -> tuple[str, str]:
     upgrade_database(url)
     app = create_app({"database_url": url, "instance_path": instance, "request_log": "off"})
     database = app.extensions["confirm.db"]
+    with database.read() as session:  # set-up, as `confirm-service db upgrade` does
+        set_up_signing_key(session, app.extensions["confirm.settings"])
     with database.write() as session:
         _, pipeline = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
         _, viewer = create_token(session, SYSTEM, "bench-viewer", "viewer")
