@@ -61,6 +61,7 @@ TARGETS = [
         "pm_ra_mas_yr": -12.5,
         "pm_dec_mas_yr": 4.1,
         "parallax_mas": 38.2,
+        "epoch": "2016-01-01T00:00:00+00:00",  # the invented catalogue's epoch, registered too
     },
     {"name": "Lumen-12", "ra_deg": 84.71, "dec_deg": 31.05},
     {"name": "Harrow-3", "ra_deg": 312.02, "dec_deg": -48.3},
@@ -104,7 +105,7 @@ def _coord(target: dict[str, Any]) -> Any:
         pm_ra_mas_yr=target.get("pm_ra_mas_yr"),
         pm_dec_mas_yr=target.get("pm_dec_mas_yr"),
         parallax_mas=target.get("parallax_mas"),
-        epoch=datetime(2016, 1, 1, tzinfo=UTC) if target.get("pm_ra_mas_yr") else None,
+        epoch=datetime.fromisoformat(target["epoch"]) if "epoch" in target else None,
     )
 
 

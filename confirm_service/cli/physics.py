@@ -90,10 +90,18 @@ def _resolve(database, kind, *args):
 @main.command("predict")
 @site_options("site", "detecting site")
 @target_options
-@click.option("--time", "time_text", required=True, help="ISO 8601 with offset")
-@click.option("--observed-frequency-hz", type=float, required=True)
+@click.option("--time", "time_text", default=None, help="ISO 8601 with offset")
+@click.option("--observed-frequency-hz", type=float, default=None)
 @click.option("--observed-drift-hz-s", type=float, default=None)
 @click.option("--drift-uncertainty-hz-s", type=float, default=None)
+@click.option(
+    "--detection",
+    "detection_id",
+    type=int,
+    default=None,
+    help="a stored hit: its site, target, instant, frequency, drift and their uncertainties "
+    "(1 sigma from its scan's channel width and length under the configured protocol)",
+)
 @site_options("to_site", "second site")
 @click.option("--to-time", "to_time_text", default=None, help="ISO 8601 with offset")
 @click.option("--json", "as_json", is_flag=True, help="machine-readable output")
@@ -109,6 +117,7 @@ def predict(
     observed_frequency_hz,
     observed_drift_hz_s,
     drift_uncertainty_hz_s,
+    detection_id,
     to_site,
     to_site_lat,
     to_site_lon,
@@ -116,9 +125,32 @@ def predict(
     to_time_text,
     as_json,
 ):
-    """Doppler quantities of a detection, and the signal expected at a second site/time."""
-    time = parse_time(time_text, "time")
+    """Doppler quantities of a detection, and the signal expected at a second site/time.
+
+    With ``--detection`` everything about the hit comes from the log, uncertainties included;
+    otherwise give the site, target, time and observed frequency."""
     to_time = parse_time(to_time_text, "to_time")
+    if detection_id is not None:
+        database = _database_if_needed("detection")
+        there = _second_site(database, to_site, to_site_lat, to_site_lon, to_site_height)
+        with database.read() as session:
+            hit = sky.stored_hit(session, detection_id)
+        result = sky.predict(
+            hit.site,
+            hit.target,
+            hit.time,
+            hit.frequency_hz,
+            hit.drift_hz_s,
+            hit.drift_uncertainty_hz_s,
+            there,
+            to_time,
+            frequency_uncertainty_hz=hit.frequency_uncertainty_hz,
+        )
+        _show_prediction(result, as_json)
+        return
+    if time_text is None or observed_frequency_hz is None:
+        raise click.UsageError("give --detection, or --time and --observed-frequency-hz")
+    time = parse_time(time_text, "time")
     database = _database_if_needed(site, target, to_site)
     here = (
         _resolve(database, "site", site, site_lat, site_lon, site_height)
@@ -141,6 +173,10 @@ def predict(
         there,
         to_time,
     )
+    _show_prediction(result, as_json)
+
+
+def _show_prediction(result: Any, as_json: bool) -> None:
     if as_json:
         click.echo(result.model_dump_json(indent=2))
         return
@@ -173,9 +209,14 @@ def _print_prediction(result: Any) -> None:
         ("second site Earth drift", result.to_earth_drift_hz_s, "Hz/s"),
         ("distance between sites", result.site_distance_km, "km"),
     ]
+    unknown_sigma = result.drift_uncertainty_hz_s is None and not result.frequency_uncertainty_hz
     for label, value, unit in rows:
-        if value is not None:
-            click.echo(f"{label:<36} {value:>22.6f} {unit}")
+        if value is None:
+            continue
+        if unknown_sigma and label.strip().startswith("uncertainty"):
+            click.echo(f"{label:<36} {'not known':>22} (give --detection or the uncertainties)")
+            continue
+        click.echo(f"{label:<36} {value:>22.6f} {unit}")
     for note in result.notes:
         click.echo(f"note: {note}")
 

@@ -29,7 +29,7 @@ from confirm_service.models import (
     ProtocolRecord,
     Site,
 )
-from confirm_service.protocol import default_physics_context, reference_of
+from confirm_service.protocol import default_physics_context, reference_of, target_coord_of
 from confirm_service.services import facts as factbook
 from confirm_service.services.candidate_views import detail, get_candidate
 from confirm_service.services.protocols import protocol_of
@@ -89,13 +89,7 @@ def _reference_measurement(facts: Any, signal: Any) -> physics.SignalMeasurement
 
 def _target_of(facts: Any) -> Any:
     """The candidate's target as an astropy coordinate, with its proper motion and parallax."""
-    return physics.target_coord(
-        facts.target.ra_deg,
-        facts.target.dec_deg,
-        pm_ra_mas_yr=facts.target.pm_ra_mas_yr,
-        pm_dec_mas_yr=facts.target.pm_dec_mas_yr,
-        parallax_mas=facts.target.parallax_mas,
-    )
+    return target_coord_of(facts.target)
 
 
 def _linked_roles(session: Session, candidate_id: int) -> dict[int, str]:

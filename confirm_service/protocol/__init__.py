@@ -52,6 +52,7 @@ from confirm_service.protocol.reference import (
     default_physics_context,
     drift_resolution_hz_s,
     reference_of,
+    target_coord_of,
 )
 from confirm_service.protocol.results import (
     Action,
@@ -98,6 +99,7 @@ __all__ = [
     "initial_stage",
     "intake_decision",
     "load_interference_bands",
+    "target_coord_of",
     "load_protocol",
     "load_protocol_text",
     "match_detections",

@@ -12,6 +12,7 @@ A detection's ``frequency_hz`` is the frequency at the detection's own time,
 from __future__ import annotations
 
 from dataclasses import dataclass
+from datetime import datetime
 
 from confirm_service.states import CandidateState
 
@@ -38,7 +39,8 @@ class SiteFact:
 
 @dataclass(frozen=True, slots=True)
 class TargetFact:
-    """A sky target: ICRS position (deg), optional proper motion (mas/yr) and parallax (mas)."""
+    """A sky target: ICRS position (deg), optional proper motion (mas/yr), parallax (mas) or
+    distance (pc), at the catalogue ``epoch`` (None: J2000.0)."""
 
     name: str
     ra_deg: float
@@ -46,6 +48,8 @@ class TargetFact:
     pm_ra_mas_yr: float | None = None
     pm_dec_mas_yr: float | None = None
     parallax_mas: float | None = None
+    distance_pc: float | None = None
+    epoch: datetime | None = None
 
 
 @dataclass(frozen=True, slots=True)

@@ -21,6 +21,9 @@ recorded as *not constraining*, with the reason and the numbers:
   scan: the reference's). It needs the reference scan's SEFD, the look's SEFD and the look's
   threshold; a look that does not state them is counted as a miss (nothing shows that it could
   not have seen the signal) and says "sensitivity not stated".
+* **Pointed elsewhere.** With the check's ``max_pointing_offset_deg`` set, a look whose stated
+  pointing lies farther than that from the target (great-circle angle, haversine formula) did
+  not look at it. The limit is the protocol's: it depends on the partners' beams.
 
 **Sessions.** Misses are counted per observing session: one site and one night, the night being
 the local mean solar date of the noon before the look's middle (longitude / 15 deg per hour),
@@ -40,6 +43,7 @@ if TYPE_CHECKING:
 
 BELOW_HORIZON = "below_horizon"
 BELOW_THRESHOLD = "below_threshold"
+POINTED_ELSEWHERE = "pointed_elsewhere"
 SENSITIVITY_NOT_STATED = "sensitivity not stated"
 _DAY_S = 86_400.0
 _NOON_S = 43_200.0
@@ -57,6 +61,8 @@ class Look:
     channel_width_hz: float
     sefd_jy: float | None
     threshold_snr: float | None
+    pointing_ra_deg: float | None = None
+    pointing_dec_deg: float | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -69,6 +75,7 @@ class Judgement:
     max_elevation_deg: float
     expected_snr: float | None
     reasons: tuple[str, ...]
+    pointing_offset_deg: float | None = None
 
     @property
     def constraining(self) -> bool:
@@ -86,6 +93,9 @@ class Judgement:
             "min_elevation_deg": look.site.min_elevation_deg,
             "expected_snr": None if self.expected_snr is None else round(self.expected_snr, 2),
             "threshold_snr": look.threshold_snr,
+            "pointing_offset_deg": (
+                None if self.pointing_offset_deg is None else round(self.pointing_offset_deg, 4)
+            ),
         }
         if self.reasons:
             entry["reasons"] = list(self.reasons)
@@ -105,6 +115,8 @@ def scan_look(view: ObservationView) -> Look:
         scan.channel_width_hz,
         scan.sefd_jy,
         scan.threshold_snr,
+        scan.pointing_ra_deg,
+        scan.pointing_dec_deg,
     )
 
 
@@ -119,6 +131,8 @@ def report_look(view: ReportView, reference_channel_width_hz: float) -> Look:
         reference_channel_width_hz,
         report.sefd_jy,
         report.threshold_snr,
+        report.pointing_ra_deg,
+        report.pointing_dec_deg,
     )
 
 
@@ -143,7 +157,21 @@ def expected_snr(
     return reference_snr * (reference_sefd_jy / sefd_jy) * math.sqrt(ratio)
 
 
-def judge(context: CandidateView, look: Look) -> Judgement:
+def angular_separation_deg(
+    ra1_deg: float, dec1_deg: float, ra2_deg: float, dec2_deg: float
+) -> float:
+    """Great-circle angle between two directions (deg), haversine formula."""
+    ra1, dec1, ra2, dec2 = (math.radians(x) for x in (ra1_deg, dec1_deg, ra2_deg, dec2_deg))
+    h = (
+        math.sin((dec2 - dec1) / 2) ** 2
+        + math.cos(dec1) * math.cos(dec2) * math.sin((ra2 - ra1) / 2) ** 2
+    )
+    return math.degrees(2.0 * math.asin(min(1.0, math.sqrt(h))))
+
+
+def judge(
+    context: CandidateView, look: Look, max_pointing_offset_deg: float | None = None
+) -> Judgement:
     """Whether ``look`` could have seen the candidate's signal (see the module doc)."""
     facts = context.facts
     middle = look.start_unix_s + 0.5 * max(look.duration_s, 0.0)
@@ -181,7 +209,18 @@ def judge(context: CandidateView, look: Look) -> Judgement:
                 f"{look.sefd_jy:g} Jy, {look.duration_s:g} s, {look.channel_width_hz:g} Hz "
                 f"channels) is below the look's threshold of {look.threshold_snr:g}"
             )
-    return Judgement(look, session_of(look.site, middle), elevation, snr, tuple(reasons))
+    offset = None
+    if look.pointing_ra_deg is not None and look.pointing_dec_deg is not None:
+        target = facts.target
+        offset = angular_separation_deg(
+            look.pointing_ra_deg, look.pointing_dec_deg, target.ra_deg, target.dec_deg
+        )
+        if max_pointing_offset_deg is not None and offset > max_pointing_offset_deg:
+            reasons.append(
+                f"{POINTED_ELSEWHERE}: the look pointed {offset:.3f} deg from the target, "
+                f"beyond the protocol's {max_pointing_offset_deg:g} deg"
+            )
+    return Judgement(look, session_of(look.site, middle), elevation, snr, tuple(reasons), offset)
 
 
 @dataclass(frozen=True, slots=True)
@@ -220,15 +259,27 @@ class Misses:
 
     def summary(self) -> str:
         """A clause for a check's reason about the looks that did not count."""
-        skipped = len(self.not_constraining)
+        skipped = [j for j in self.judgements if not j.constraining]
         if not skipped:
             return ""
+
+        def count(reason: str) -> int:
+            return sum(1 for j in skipped if any(r.startswith(reason) for r in j.reasons))
+
+        wording = (
+            (BELOW_HORIZON, "with the target below the site's horizon limit"),
+            (BELOW_THRESHOLD, "where the expected SNR was below the look's threshold"),
+            (POINTED_ELSEWHERE, "pointed away from the target"),
+        )
+        parts = [f"{count(key)} {text}" for key, text in wording if count(key)]
         return (
-            f" {skipped} look(s) that saw nothing do not count: the target was below the "
-            "horizon or the look was not sensitive enough (see details)."
+            f" {len(skipped)} look(s) that saw nothing do not count ({', '.join(parts)}; "
+            "numbers in the details)."
         )
 
 
-def judge_all(context: CandidateView, looks: list[Look]) -> Misses:
+def judge_all(
+    context: CandidateView, looks: list[Look], max_pointing_offset_deg: float | None = None
+) -> Misses:
     """Every look judged, in order."""
-    return Misses(tuple(judge(context, look) for look in looks))
+    return Misses(tuple(judge(context, look, max_pointing_offset_deg) for look in looks))

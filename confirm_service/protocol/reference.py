@@ -143,6 +143,20 @@ class _BoundedCache(Generic[_Value]):
         return value
 
 
+def target_coord_of(target: TargetFact) -> Any:
+    """The astropy coordinate of a target fact: position and proper motion at its catalogue
+    epoch (J2000.0 when none), so the Doppler terms apply the motion up to each scan's time."""
+    return physics.target_coord(
+        target.ra_deg,
+        target.dec_deg,
+        pm_ra_mas_yr=target.pm_ra_mas_yr,
+        pm_dec_mas_yr=target.pm_dec_mas_yr,
+        parallax_mas=target.parallax_mas,
+        distance_pc=target.distance_pc,
+        epoch=target.epoch,
+    )
+
+
 def _site_key(site: SiteFact) -> tuple[str, float, float, float]:
     return ("site", float(site.latitude_deg), float(site.longitude_deg), float(site.elevation_m))
 
@@ -155,6 +169,8 @@ def _target_key(target: TargetFact) -> tuple[Any, ...]:
         target.pm_ra_mas_yr,
         target.pm_dec_mas_yr,
         target.parallax_mas,
+        target.distance_pc,
+        target.epoch,
     )
 
 
@@ -185,13 +201,7 @@ class PhysicsContext:
         """ICRS SkyCoord of a target."""
         return self._targets.get_or_make(
             _target_key(target),
-            lambda: physics.target_coord(
-                target.ra_deg,
-                target.dec_deg,
-                pm_ra_mas_yr=target.pm_ra_mas_yr,
-                pm_dec_mas_yr=target.pm_dec_mas_yr,
-                parallax_mas=target.parallax_mas,
-            ),
+            lambda: target_coord_of(target),
         )
 
     def track_request(self, site: SiteFact, target: TargetFact) -> Any:
@@ -242,6 +252,16 @@ def default_physics_context() -> PhysicsContext:
         context = PhysicsContext()
         _THREAD_STATE.context = context
     return context
+
+
+def measurement_uncertainty(
+    protocol: ProtocolLike | None, channel_width_hz: float, duration_s: float
+) -> tuple[float, float]:
+    """1-sigma (frequency Hz, drift Hz/s) of a hit measured with ``channel_width_hz`` channels
+    over a ``duration_s`` scan: the protocol's [matching] numbers of channels and of drift
+    resolutions (channel width / duration)."""
+    frequency_channels, drift_resolutions = _uncertainty_scales(protocol)
+    return frequency_channels * channel_width_hz, drift_resolutions * channel_width_hz / duration_s
 
 
 def _uncertainty_scales(protocol: ProtocolLike | None) -> tuple[float, float]:

@@ -158,7 +158,12 @@ EpochTime = Annotated[
     Field(
         ge=EARLIEST_EPOCH,
         lt=LATEST_TIME,
-        description=f"ISO 8601 with a UTC offset, {EARLIEST_EPOCH.date()} to {LATEST_TIME.date()}",
+        description=(
+            "Catalogue epoch of the position and proper motion (ISO 8601 with a UTC offset, "
+            f"{EARLIEST_EPOCH.date()} to {LATEST_TIME.date()}). Omitted: J2000.0 "
+            "(2000-01-01T12:00 TT). Every prediction, check and picture applies the proper "
+            "motion from this epoch to the time of the observation."
+        ),
     ),
 ]
 

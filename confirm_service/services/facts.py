@@ -57,6 +57,8 @@ def target_fact(target: Target) -> TargetFact:
         target.pm_ra_mas_yr,
         target.pm_dec_mas_yr,
         target.parallax_mas,
+        target.distance_pc,
+        target.epoch,
     )
 
 

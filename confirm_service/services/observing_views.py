@@ -27,7 +27,7 @@ from confirm_service.models import (
     Site,
     Target,
 )
-from confirm_service.protocol import default_physics_context, reference_of
+from confirm_service.protocol import default_physics_context, reference_of, target_coord_of
 from confirm_service.services import facts as factbook
 from confirm_service.services.candidate_views import get_candidate
 from confirm_service.services.protocols import protocol_of
@@ -93,13 +93,7 @@ def _measurement(session: Session, candidate: Candidate) -> tuple[object, object
         signal.frequency_uncertainty_hz,
         signal.drift_uncertainty_hz_s,
     )
-    target = physics.target_coord(
-        facts.target.ra_deg,
-        facts.target.dec_deg,
-        pm_ra_mas_yr=facts.target.pm_ra_mas_yr,
-        pm_dec_mas_yr=facts.target.pm_dec_mas_yr,
-        parallax_mas=facts.target.parallax_mas,
-    )
+    target = target_coord_of(facts.target)
     return measurement, target
 
 

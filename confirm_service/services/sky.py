@@ -9,13 +9,13 @@ from __future__ import annotations
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
-from datetime import datetime
+from datetime import datetime, timedelta
 from typing import Any
 
 from sqlalchemy.orm import Session
 
 from confirm_service import physics
-from confirm_service.errors import Invalid
+from confirm_service.errors import Invalid, NotFound
 from confirm_service.physics import PhysicsInputError
 from confirm_service.schemas.predictions import (
     NextWindows,
@@ -106,6 +106,47 @@ def resolve_target(
     return TargetPosition(None, ra, dec, {})
 
 
+@dataclass(frozen=True)
+class StoredHit:
+    """A stored hit as a measurement: where and when (scan start + time offset), what was
+    measured, and its 1-sigma uncertainties under the configured protocol."""
+
+    site: SitePosition
+    target: TargetPosition
+    time: datetime
+    frequency_hz: float
+    drift_hz_s: float
+    frequency_uncertainty_hz: float
+    drift_uncertainty_hz_s: float
+
+
+def stored_hit(session: Session, detection_id: int) -> StoredHit:
+    """The hit ``detection_id`` of an on-target scan, ready for :func:`predict`."""
+    from confirm_service.models import Detection, Observation
+    from confirm_service.protocol.reference import measurement_uncertainty
+    from confirm_service.services.protocols import configured_protocol
+
+    detection = session.get(Detection, detection_id)
+    if detection is None:
+        raise NotFound(f"no detection {detection_id}", [("detection", "no such detection")])
+    scan = session.get(Observation, detection.observation_id)
+    assert scan is not None  # a foreign key
+    if scan.target is None:
+        raise Invalid("the hit's scan has no target", [("detection", "its scan names no target")])
+    sigma_f, sigma_drift = measurement_uncertainty(
+        configured_protocol(session), scan.channel_width_hz, scan.duration_s
+    )
+    return StoredHit(
+        site=resolve_site(session, scan.site.code, None, None, None),
+        target=resolve_target(session, scan.target.name, None, None),
+        time=scan.start + timedelta(seconds=detection.time_offset_s),
+        frequency_hz=detection.frequency_hz,
+        drift_hz_s=detection.drift_hz_s,
+        frequency_uncertainty_hz=sigma_f,
+        drift_uncertainty_hz_s=sigma_drift,
+    )
+
+
 def predict(
     site: SitePosition,
     target: TargetPosition,
@@ -115,6 +156,7 @@ def predict(
     drift_uncertainty_hz_s: float | None = None,
     to_site: SitePosition | None = None,
     to_time: datetime | None = None,
+    frequency_uncertainty_hz: float = 0.0,
 ) -> PredictionResult:
     with physics_refusals():
         return predictions.compute_prediction(
@@ -129,6 +171,7 @@ def predict(
             drift_uncertainty_hz_s,
             (to_site.latitude_deg, to_site.longitude_deg, to_site.elevation_m) if to_site else None,
             to_time,
+            frequency_uncertainty_hz=frequency_uncertainty_hz,
             **target.motion,
         )
 

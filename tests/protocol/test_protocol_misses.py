@@ -156,6 +156,7 @@ def test_looks_too_insensitive_for_the_signal_are_not_misses(
         "independent_site", replace(facts, reports=weak), default_protocol, physics_context, **SITE
     )
     assert result.outcome == "pending" and result.details["missed"] == []
+    assert "2 where the expected SNR was below the look's threshold" in result.reason
     for record in result.details["not_constraining"]:
         assert record["reasons"][0].startswith("below_threshold")
         assert record["expected_snr"] == pytest.approx(expected, abs=0.01)
@@ -257,3 +258,46 @@ def test_reobservation_counts_a_partner_report_without_its_scan(
         "reobservation", replace(facts, reports=quiet), default_protocol, physics_context, **REOBS
     )
     assert failed.outcome == "fail" and failed.details["missed_report_ids"] == [6, 7]
+
+
+def test_looks_pointed_away_from_the_target_are_not_misses(
+    injection_scenarios, default_protocol, physics_context
+):
+    from astropy import units as u
+    from astropy.coordinates import SkyCoord
+
+    scenario = injection_scenarios["sf-ald-dorado-0"]
+    facts, far = far_site_facts(scenario)
+    target = facts.target
+    away = {"pointing_ra_deg": target.ra_deg + 2.0, "pointing_dec_deg": target.dec_deg - 1.0}
+    looks = (
+        silent(scenario, far.start_unix_s, 1, **away),
+        silent(scenario, far.start_unix_s + SIDEREAL_DAY_S, 2, **away),
+    )
+    limited = run(
+        "independent_site",
+        replace(facts, reports=looks),
+        default_protocol,
+        physics_context,
+        max_pointing_offset_deg=0.5,
+        **SITE,
+    )
+    assert limited.outcome == "pending" and limited.details["missed"] == []
+    # Reference: astropy's great-circle separation (Vincenty formula) of the two directions.
+    separation = (
+        SkyCoord(target.ra_deg * u.deg, target.dec_deg * u.deg)
+        .separation(SkyCoord(away["pointing_ra_deg"] * u.deg, away["pointing_dec_deg"] * u.deg))
+        .deg
+    )
+    for record in limited.details["not_constraining"]:
+        assert record["reasons"][0].startswith("pointed_elsewhere")
+        assert record["pointing_offset_deg"] == pytest.approx(separation, abs=1e-4)
+    assert "2 pointed away from the target" in limited.reason
+    # Without a limit in the protocol, pointing is recorded but not judged.
+    unlimited = run(
+        "independent_site", replace(facts, reports=looks), default_protocol, physics_context, **SITE
+    )
+    assert unlimited.outcome == "fail"
+    assert unlimited.details["misses"][0]["pointing_offset_deg"] == pytest.approx(
+        separation, abs=1e-4
+    )

@@ -54,7 +54,7 @@ def test_looks_below_the_horizon_show_as_not_constraining(client, auth, db):
     assert [r["site"] for r in records] == ["TFO", "TFO"]
     assert all(r["reasons"][0].startswith("below_horizon") for r in records)
     assert all(r["max_elevation_deg"] < 0.0 and r["min_elevation_deg"] == 12.0 for r in records)
-    assert "do not count" in check["reason"]
+    assert "2 with the target below the site's horizon limit" in check["reason"]
     dossier = client.get(
         f"/api/v1/candidates/{candidate['id']}/dossier", headers=auth("coordinator")
     )

@@ -34,6 +34,9 @@ class Params(CheckParams):
 
     min_distance_km: PositiveFloat
     max_misses: PositiveInt
+    max_pointing_offset_deg: PositiveFloat | None = None
+    """A look pointed farther than this from the target (deg) is not constraining; unset,
+    pointing is recorded but not judged (the limit depends on the partners' beams)."""
 
 
 @dataclass(frozen=True, slots=True)
@@ -91,7 +94,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
             )
         if sighting.site not in seen_sites:
             seen_sites.append(sighting.site)
-    misses = _misses(context, seen_sites, params.min_distance_km)
+    misses = _misses(context, seen_sites, params.min_distance_km, params.max_pointing_offset_deg)
     sessions = len(misses.sessions)
     details = misses.details() | {"sites_seen": [s.code for s in seen_sites]}
     if sessions >= params.max_misses:
@@ -115,7 +118,12 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
     )
 
 
-def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -> Misses:
+def _misses(
+    context: CandidateView,
+    seen_sites: list[SiteFact],
+    min_km: float,
+    max_pointing_offset_deg: float | None,
+) -> Misses:
     """Looks from far sites that covered the prediction and saw nothing, judged."""
     begin = context.reference_view.observation.start_unix_s
 
@@ -139,4 +147,4 @@ def _misses(context: CandidateView, seen_sites: list[SiteFact], min_km: float) -
             and _far(context, report.site)
         ):
             looks.append(report_look(report_view, width))
-    return judge_all(context, looks)
+    return judge_all(context, looks, max_pointing_offset_deg)

@@ -38,6 +38,9 @@ class Params(CheckParams):
 
     min_gap_hours: PositiveFloat
     max_misses: PositiveInt
+    max_pointing_offset_deg: PositiveFloat | None = None
+    """A look pointed farther than this from the target (deg) is not constraining; unset,
+    pointing is recorded but not judged (the limit depends on the partners' beams)."""
     same_site_only: bool
 
 
@@ -63,6 +66,7 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
         context,
         [scan_look(v) for v in later if v.covers and not v.present]
         + [report_look(v, width) for v in reports if v.covers and not v.present],
+        params.max_pointing_offset_deg,
     )
     missed = set(misses.labels)
     details = misses.details() | {
