@@ -9,6 +9,7 @@ from flask import Flask, Response, request
 from confirm_service.api.common import authenticate_request
 from confirm_service.api.converters import install_converters
 from confirm_service.api.problems import install_problem_handlers
+from confirm_service.api.telemetry import install_telemetry
 from confirm_service.config import Settings, load_settings
 from confirm_service.db import Database
 from confirm_service.services import protocols, runtime
@@ -25,6 +26,7 @@ def _blueprints() -> list[Any]:
         physics,
         sites,
         targets,
+        telemetry,
     )
 
     return [
@@ -37,6 +39,7 @@ def _blueprints() -> list[Any]:
         followups.inbox,
         physics.bp,
         audit.bp,
+        telemetry.bp,
         web.bp,
     ]
 
@@ -69,6 +72,7 @@ def create_app(config: dict[str, Any] | Settings | None = None) -> Flask:
     app.extensions["confirm.db"] = database
     install_problem_handlers(app)
     install_converters(app)
+    install_telemetry(app, request_log=settings.request_log == "json")
 
     @app.before_request
     def _authenticate() -> Any:

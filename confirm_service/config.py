@@ -10,7 +10,7 @@ import sys
 import tomllib
 from dataclasses import field, fields, replace
 from pathlib import Path
-from typing import Annotated, Any
+from typing import Annotated, Any, Literal
 
 from pydantic import Field, ValidationError
 from pydantic.dataclasses import dataclass
@@ -63,6 +63,8 @@ class Settings:
     smtp_port: Annotated[int, Field(gt=0, lt=65536)] = 25
     mail_from: str = "confirm-service@localhost"
     contacts_file: Path | None = None
+    request_log: Literal["json", "off"] = "json"
+    scheduler_metrics_port: Annotated[int, Field(ge=0, lt=65536)] = 0
 
     @property
     def is_sqlite(self) -> bool:

@@ -17,6 +17,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
+from confirm_service import metrics
 from confirm_service.config import PACKAGE_DIR, ConfigError
 from confirm_service.errors import Unavailable
 
@@ -108,12 +109,16 @@ class Database:
             yield session
             session.commit()
         except OperationalError as exc:
+            metrics.drop_counts(session)
             with suppress(Exception):
                 session.rollback()
             raise _unavailable(exc) from exc
         except BaseException:
+            metrics.drop_counts(session)
             session.rollback()
             raise
+        else:
+            metrics.apply_counts(session)
         finally:
             session.close()
 

@@ -17,7 +17,7 @@ SOURCE = ROOT / PACKAGE
 
 # Bottom to top. Each entry names top-level modules or packages of confirm_service.
 LAYERS: tuple[tuple[str, ...], ...] = (
-    ("timeutil", "cautions", "actor", "errors", "roles", "states", "config"),
+    ("timeutil", "cautions", "actor", "errors", "roles", "states", "config", "metrics"),
     ("models", "db", "schemas", "physics"),
     ("protocol",),
     ("audit",),

@@ -20,6 +20,7 @@ from confirm_service.api.common import (
 from confirm_service.api.spec import documented
 from confirm_service.errors import Forbidden
 from confirm_service.models import FollowUpRequest, OutboundMessage, Site
+from confirm_service.schemas.common import Page
 from confirm_service.schemas.followups import (
     DeclineIn,
     FollowUpCreate,
@@ -116,7 +117,8 @@ def candidate_messages(candidate_id: int) -> Response:
 @documented(
     "Follow-up requests; a site token sees its own site's (partners without a webhook poll "
     "?site=CODE&state=sent)",
-    response=FollowUpRequestOut,
+    query=FollowUpListQuery,
+    response=Page[FollowUpRequestOut],
     error_statuses=(401, 403, 404, 422),
     tag="followups",
 )

@@ -6,8 +6,8 @@ from flask import Blueprint, Response
 
 from confirm_service.api.common import READ_ROLES, database, json_response, parse_query, roles
 from confirm_service.api.spec import documented
-from confirm_service.schemas.predictions import PredictionResult, VisibilityResult
-from confirm_service.schemas.sky import NextWindows, PredictionQuery, SiteWindows, VisibilityQuery
+from confirm_service.schemas.predictions import NextWindows, PredictionResult, VisibilityResult
+from confirm_service.schemas.sky import PredictionQuery, VisibilityQuery
 from confirm_service.services import sky
 
 bp = Blueprint("physics", __name__, url_prefix="/api/v1")
@@ -50,7 +50,7 @@ def predictions() -> Response:
     "Windows when a target is above the site's minimum elevation and clear of the Sun; "
     "without a site, the next windows at every registered site",
     query=VisibilityQuery,
-    response=VisibilityResult,
+    response=VisibilityResult | NextWindows,
     error_statuses=(401, 403, 404, 422),
     tag="physics",
 )
@@ -60,27 +60,7 @@ def visibility() -> Response:
     with database().read() as session:
         target = sky.resolve_target(session, q.target, q.ra, q.dec)
         if not q.site and q.site_lat is None:
-            found = sky.next_windows_everywhere(session, target, q.from_, q.count)
-            body = NextWindows(
-                target=target.name,
-                start=q.from_,
-                sites=[
-                    SiteWindows(
-                        site=code,
-                        windows=[
-                            {
-                                "start": w.start.isoformat(),
-                                "end": w.end.isoformat(),
-                                "duration_s": (w.end - w.start).total_seconds(),
-                                "max_elevation_deg": w.max_elevation_deg,
-                            }
-                            for w in windows
-                        ],
-                    )
-                    for code, windows in found.items()
-                ],
-            )
-            return json_response(body)
+            return json_response(sky.next_windows_everywhere(session, target, q.from_, q.count))
         site = sky.resolve_site(session, q.site, q.site_lat, q.site_lon, q.site_height)
     return json_response(
         sky.visibility(site, target, q.from_, q.days, q.min_elevation_deg, q.sun_avoidance_deg)

@@ -77,8 +77,24 @@ def _query_parameters(model: type[BaseModel]) -> list[dict[str, Any]]:
     ]
 
 
+def _statuses_any_request_may_get(rule: str, op: Operation, has_path_parameters: bool) -> set[int]:
+    """Refusals that follow from the shape of an operation rather than from its logic: no
+    token (401), an id that names nothing or is not an id (404), a body that is too large, not
+    JSON or invalid (413, 415, 422), a query that is invalid (422), and a database that does not
+    answer (503, with ``Retry-After``)."""
+    statuses = {503}
+    if rule.startswith("/api/"):
+        statuses.add(401)
+    if has_path_parameters:
+        statuses.add(404)
+    if op.request is not None:
+        statuses |= {413, 415, 422}
+    if op.query is not None:
+        statuses.add(422)
+    return statuses
+
+
 def build_openapi(app: Flask, version: str) -> dict[str, Any]:
-    """The OpenAPI 3.1 document of every documented route of ``app``."""
     definitions: dict[str, Any] = {}
     problem_ref = _schema_of(Problem, definitions)
     paths: dict[str, Any] = {}
@@ -92,7 +108,45 @@ def build_openapi(app: Flask, version: str) -> dict[str, Any]:
             op = operations.get(method) or operations.get("*")
             if op is None:
                 continue
-            entry = _operation_entry(op, path_parameters, definitions, problem_ref)
+            entry: dict[str, Any] = {"summary": op.summary, "tags": [op.tag]}
+            parameters = list(path_parameters)
+            if op.query is not None:
+                parameters += _query_parameters(op.query)
+            for name, description in op.headers.items():
+                parameters.append(
+                    {
+                        "name": name,
+                        "in": "header",
+                        "required": False,
+                        "description": description,
+                        "schema": {"type": "string"},
+                    }
+                )
+            if parameters:
+                entry["parameters"] = parameters
+            if op.request is not None:
+                entry["requestBody"] = {
+                    "required": True,
+                    "content": {
+                        "application/json": {"schema": _schema_of(op.request, definitions)}
+                    },
+                }
+            responses: dict[str, Any] = {}
+            ok: dict[str, Any] = {"description": "success"}
+            if op.response is not None:
+                ok["content"] = {
+                    "application/json": {"schema": _schema_of(op.response, definitions)}
+                }
+            responses[str(op.status)] = ok
+            for status in sorted(
+                set(op.error_statuses)
+                | _statuses_any_request_may_get(rule.rule, op, bool(path_parameters))
+            ):
+                responses[str(status)] = {
+                    "description": "problem details (RFC 9457)",
+                    "content": {"application/problem+json": {"schema": problem_ref}},
+                }
+            entry["responses"] = responses
             if rule.rule.startswith("/api/"):
                 entry["security"] = [{"bearer": []}]
             paths.setdefault(path, {})[method.lower()] = entry
@@ -105,54 +159,3 @@ def build_openapi(app: Flask, version: str) -> dict[str, Any]:
             "securitySchemes": {"bearer": {"type": "http", "scheme": "bearer"}},
         },
     }
-
-
-def _operation_entry(
-    op: Operation,
-    path_parameters: list[dict[str, Any]],
-    definitions: dict[str, Any],
-    problem_ref: dict[str, Any],
-) -> dict[str, Any]:
-    """One operation: summary, tag, parameters, request body and responses."""
-    entry: dict[str, Any] = {"summary": op.summary, "tags": [op.tag]}
-    parameters = [*path_parameters, *_query_and_header_parameters(op)]
-    if parameters:
-        entry["parameters"] = parameters
-    if op.request is not None:
-        entry["requestBody"] = {
-            "required": True,
-            "content": {"application/json": {"schema": _schema_of(op.request, definitions)}},
-        }
-    entry["responses"] = _responses(op, definitions, problem_ref)
-    return entry
-
-
-def _query_and_header_parameters(op: Operation) -> list[dict[str, Any]]:
-    parameters = _query_parameters(op.query) if op.query is not None else []
-    for name, description in op.headers.items():
-        parameters.append(
-            {
-                "name": name,
-                "in": "header",
-                "required": False,
-                "description": description,
-                "schema": {"type": "string"},
-            }
-        )
-    return parameters
-
-
-def _responses(
-    op: Operation, definitions: dict[str, Any], problem_ref: dict[str, Any]
-) -> dict[str, Any]:
-    """The success response and a problem details response (RFC 9457) per error status."""
-    ok: dict[str, Any] = {"description": "success"}
-    if op.response is not None:
-        ok["content"] = {"application/json": {"schema": _schema_of(op.response, definitions)}}
-    responses: dict[str, Any] = {str(op.status): ok}
-    for status in op.error_statuses:
-        responses[str(status)] = {
-            "description": "problem details (RFC 9457)",
-            "content": {"application/problem+json": {"schema": problem_ref}},
-        }
-    return responses

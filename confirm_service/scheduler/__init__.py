@@ -14,6 +14,7 @@ from typing import Any
 
 from apscheduler.jobstores.sqlalchemy import SQLAlchemyJobStore
 from apscheduler.schedulers.background import BackgroundScheduler
+from prometheus_client import start_http_server
 from sqlalchemy.engine import make_url
 
 from confirm_service.config import Settings
@@ -76,6 +77,10 @@ def run_scheduler(
     if threading.current_thread() is threading.main_thread():
         for number in (signal.SIGTERM, signal.SIGINT):
             signal.signal(number, lambda *_: stop.set())
+    if settings.scheduler_metrics_port:
+        # The scheduler's own counters (deliveries, evaluations of the deadline sweep), on
+        # loopback for a local Prometheus agent; web workers show theirs at /api/v1/metrics.
+        start_http_server(settings.scheduler_metrics_port, addr="127.0.0.1")
     lock = LeaderLock(database, lock_dir(database, settings))
     log.info("scheduler %s: waiting for the leader lock (standby)", runner_name())
     if not lock.wait(settings.scheduler_standby_poll_s, stop):

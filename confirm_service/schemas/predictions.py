@@ -107,3 +107,23 @@ class VisibilityResult(BaseModel):
     step_s: float
     windows: list[VisibilityWindowResult]
     notes: list[str] = []
+
+
+class SiteWindows(BaseModel):
+    """The next windows of a target at one registered site."""
+
+    model_config = ConfigDict(frozen=True)
+
+    site: str
+    windows: list[VisibilityWindowResult]
+
+
+class NextWindows(BaseModel):
+    """The next windows of a target at every registered site (``/visibility`` without a site)."""
+
+    model_config = ConfigDict(frozen=True)
+
+    target: str | None
+    start: UtcDateTime
+    sites: list[SiteWindows]
+    notes: list[str] = []

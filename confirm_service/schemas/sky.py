@@ -13,7 +13,7 @@ from confirm_service.schemas.bounds import (
     FrequencyHz,
     ObservationTime,
 )
-from confirm_service.schemas.common import Latitude, Longitude, StrictModel, UtcIso
+from confirm_service.schemas.common import Latitude, Longitude, StrictModel
 
 
 class SiteQuery(StrictModel):
@@ -55,16 +55,3 @@ class VisibilityQuery(SiteQuery):
     min_elevation_deg: Annotated[float, Field(ge=-10, le=90)] | None = None
     sun_avoidance_deg: Annotated[float, Field(ge=0, le=180)] | None = None
     count: Annotated[int, Field(ge=1, le=50)] = 3
-
-
-class SiteWindows(StrictModel):
-    site: str
-    windows: list[dict]
-
-
-class NextWindows(StrictModel):
-    """The next windows of a target at every registered site (no ``site`` given)."""
-
-    target: str | None
-    start: UtcIso
-    sites: list[SiteWindows]

@@ -14,6 +14,7 @@ from typing import Any
 from sqlalchemy import and_, func, or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service import metrics
 from confirm_service.actor import SYSTEM, Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import NotFound
@@ -271,6 +272,8 @@ def reevaluate(
     if transitioned:
         reason = f"candidate {candidate.id} transition"
         checkpoint_if_due(session, runtime.settings(), now, reason, moved=[candidate])
+    outcome = "transitioned" if transitioned else "unchanged"
+    metrics.count_on_commit(session, metrics.EVALUATIONS, outcome=outcome)
     return evaluation
 
 

@@ -14,6 +14,7 @@ from typing import Any
 from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service import metrics
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.config import Settings
@@ -190,6 +191,7 @@ def record_attempt(
             else None,
         },
     )
+    metrics.count_on_commit(session, metrics.DELIVERIES, outcome=message.status)
     return message.status
 
 

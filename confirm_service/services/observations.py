@@ -11,6 +11,7 @@ from typing import Any
 from sqlalchemy import func, select, text
 from sqlalchemy.orm import Session
 
+from confirm_service import metrics
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import Invalid, NotFound, TooLarge
@@ -206,6 +207,8 @@ def ingest_detections(
     if errors:
         raise Invalid(f"{len(errors)} detection field(s) refused; nothing was written", errors)
     ids = insert_detections(session, observation, rows)
+    metrics.count_on_commit(session, metrics.HIT_BATCHES)
+    metrics.count_on_commit(session, metrics.HITS_WRITTEN, len(ids))
     record(
         session,
         actor,

@@ -41,7 +41,7 @@ if TYPE_CHECKING:
     from astropy.coordinates import EarthLocation, SkyCoord
     from astropy.time import Time
 
-__all__ = ["compute_prediction", "compute_visibility"]
+__all__ = ["compute_prediction", "compute_visibility", "window_result"]
 
 VISIBILITY_CAUTION = f"Geometry only (no refraction). {SITE_SAFETY}"
 MAX_VISIBILITY_DAYS = 400.0
@@ -244,6 +244,18 @@ def _prediction_notes(no_drift: bool, fixed_uncertainty: bool) -> list[str]:
     return notes
 
 
+def window_result(window: VisibilityWindow) -> VisibilityWindowResult:
+    """One physics window as it is answered (times UTC, duration in s, elevation in deg)."""
+    return VisibilityWindowResult(
+        start=window.start,
+        end=window.end,
+        duration_s=window.duration_s,
+        max_elevation_deg=window.max_elevation_deg,
+        starts_at_search_start=window.starts_at_search_start,
+        ends_at_search_end=window.ends_at_search_end,
+    )
+
+
 def compute_visibility(
     site_lat_deg: float,
     site_lon_deg: float,
@@ -287,7 +299,7 @@ def compute_visibility(
         min_elevation_deg=min_elevation,
         sun_avoidance_deg=sun_avoidance,
         step_s=step,
-        windows=[_window_result(w) for w in windows],
+        windows=[window_result(w) for w in windows],
         notes=[VISIBILITY_CAUTION],
     )
 
@@ -306,14 +318,3 @@ def _visibility_limits(
         missing = "min_elevation_deg" if min_elevation is None else "sun_avoidance_deg"
         raise PhysicsInputError(missing if step is not None else "step_s", "a number is required")
     return span_days, min_elevation, sun_avoidance, step
-
-
-def _window_result(window: VisibilityWindow) -> VisibilityWindowResult:
-    return VisibilityWindowResult(
-        start=window.start,
-        end=window.end,
-        duration_s=window.duration_s,
-        max_elevation_deg=window.max_elevation_deg,
-        starts_at_search_start=window.starts_at_search_start,
-        ends_at_search_end=window.ends_at_search_end,
-    )

@@ -18,6 +18,7 @@ import numpy as np
 from sqlalchemy import func, or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service import metrics
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
 from confirm_service.errors import NotFound
@@ -407,6 +408,9 @@ def screen_after_completion(session: Session, actor: Actor, observation: Observa
             "candidate_ids": candidate_ids,
         },
     )
+    metrics.count_on_commit(session, metrics.SCREENING_RUNS)
+    for reason, hits in run.counts.items():
+        metrics.count_on_commit(session, metrics.SCREENED_HITS, hits, reason=reason)
     return RunSummary(run.id, run.counts, run.decided_sha256, candidate_ids)
 
 

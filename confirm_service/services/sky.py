@@ -17,7 +17,12 @@ from sqlalchemy.orm import Session
 from confirm_service import physics
 from confirm_service.errors import Invalid, NotFound
 from confirm_service.physics import PhysicsInputError
-from confirm_service.schemas.predictions import PredictionResult, VisibilityResult
+from confirm_service.schemas.predictions import (
+    NextWindows,
+    PredictionResult,
+    SiteWindows,
+    VisibilityResult,
+)
 from confirm_service.services import predictions
 from confirm_service.services.sites import all_sites, site_by_code, target_by_name
 
@@ -195,7 +200,7 @@ def visibility(
 
 def next_windows_everywhere(
     session: Session, target: TargetPosition, start: datetime, count: int
-) -> dict[str, list[Any]]:
+) -> NextWindows:
     """The next ``count`` windows of ``target`` at every registered site."""
     with physics_refusals():
         coord = physics.target_coord(target.ra_deg, target.dec_deg, **target.motion)
@@ -208,4 +213,13 @@ def next_windows_everywhere(
             )
             for s in all_sites(session)
         ]
-        return physics.next_windows(sites, coord, start, count)
+        found = physics.next_windows(sites, coord, start, count)
+    return NextWindows(
+        target=target.name,
+        start=start,
+        sites=[
+            SiteWindows(site=code, windows=[predictions.window_result(w) for w in windows])
+            for code, windows in found.items()
+        ],
+        notes=[predictions.VISIBILITY_CAUTION],
+    )

@@ -55,6 +55,7 @@ EXPECTED_ROLES = {
     ("POST", "/api/v1/followups/<int:request_id>/decline"): {"site", "coordinator", "admin"},
     ("POST", "/api/v1/followups/<int:request_id>/resend"): {"coordinator", "admin"},
     ("GET", "/api/v1/messages"): {"coordinator", "admin"},
+    ("GET", "/api/v1/metrics"): {"viewer", "coordinator", "admin"},
     ("POST", "/api/v1/messages/<int:message_pk>/resend"): {"coordinator", "admin"},
 }
 
