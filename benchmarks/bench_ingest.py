@@ -27,6 +27,7 @@ from sqlalchemy import insert
 
 from confirm_service.actor import SYSTEM
 from confirm_service.app import create_app
+from confirm_service.audit.checkpoints import set_up_signing_key
 from confirm_service.db import Database, upgrade_database
 from confirm_service.models import Detection
 from confirm_service.services.tokens import create_token
@@ -70,8 +71,12 @@ def scan_start(index: int) -> datetime:
 def prepare(url: str, scans: int) -> tuple[Any, dict[str, str], list[int]]:
     """A fresh service with a site, a target and ``scans`` registered scans (not timed)."""
     upgrade_database(url)
-    app = create_app({"database_url": url, "instance_path": Path(tempfile.mkdtemp())})
+    app = create_app(
+        {"database_url": url, "instance_path": Path(tempfile.mkdtemp()), "request_log": "off"}
+    )
     db: Database = app.extensions["confirm.db"]
+    with db.read() as session:  # set-up, as `confirm-service db upgrade` does
+        set_up_signing_key(session, app.extensions["confirm.settings"])
     with db.write() as session:
         _, secret = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
         _, admin = create_token(session, SYSTEM, "bench-admin", "admin")

@@ -37,6 +37,7 @@ from sqlalchemy.engine import make_url
 
 from confirm_service.actor import SYSTEM
 from confirm_service.app import create_app
+from confirm_service.audit.checkpoints import set_up_signing_key
 from confirm_service.db import Database, upgrade_database
 from confirm_service.demo import SITES, TARGETS, first_window
 from confirm_service.models import Candidate, Detection
@@ -51,8 +52,16 @@ class Service:
 
     def __init__(self, url: str) -> None:
         upgrade_database(url)
-        self.app = create_app({"database_url": url, "instance_path": Path(tempfile.mkdtemp())})
+        self.app = create_app(
+            {
+                "database_url": url,
+                "instance_path": Path(tempfile.mkdtemp()),
+                "request_log": "off",  # a log line per request is the operator's choice
+            }
+        )
         self.db: Database = self.app.extensions["confirm.db"]
+        with self.db.read() as session:  # set-up, as `confirm-service db upgrade` does
+            set_up_signing_key(session, self.app.extensions["confirm.settings"])
         with self.db.write() as session:
             _, pipeline = create_token(session, SYSTEM, "bench-pipeline", "pipeline")
             _, coordinator = create_token(session, SYSTEM, "bench-coordinator", "coordinator")
