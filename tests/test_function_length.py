@@ -22,7 +22,7 @@ LONGER: dict[str, int] = {
     "protocol/reference.py:predict_references": 85,
     "demo.py:scenario_scans": 79,
     "services/intake.py:create_candidate": 79,
-    "protocol/checks/reobservation.py:evaluate": 78,
+    "protocol/checks/reobservation.py:evaluate": 75,
     "followup/content.py:_window_entry": 72,
     "services/followups.py:record_report": 70,
     "cli/physics.py:predict": 69,

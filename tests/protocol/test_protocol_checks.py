@@ -136,7 +136,11 @@ def test_independent_site_pass_uses_the_distance_from_every_site(
     result = run("independent_site", facts, default_protocol, physics_context, **SITE)
     assert result.outcome == "pass"
     expected_km = chord_km(SITES["ALD"], SITES["BRN"])
-    assert result.measured == pytest.approx(expected_km, abs=0.01)  # WGS84 chord, 10 m
+    assert result.details["distance_km"] == pytest.approx(expected_km, abs=0.01)  # WGS84 chord
+    # what an observer reads: observed minus predicted frequency there, within the band
+    assert result.unit == "Hz" and result.expected == 0.0
+    assert result.measured == result.details["offset_hz"]
+    assert result.tolerance > 0.0 and abs(result.measured) <= result.tolerance
     raised = run(
         "independent_site",
         facts,

@@ -249,7 +249,8 @@ def test_reobservation_counts_a_partner_report_without_its_scan(
     assert passed.outcome == "pass" and passed.details["present_report_ids"] == [5]
     # the gap runs from the reference hit's instant (scan start + offset) to the report's
     hit_instant = reference.start_unix_s + facts.reference.time_offset_s
-    assert passed.measured == pytest.approx((when - hit_instant) / 3600.0, abs=1e-6)
+    assert passed.details["gap_hours"] == pytest.approx((when - hit_instant) / 3600.0, abs=1e-6)
+    assert passed.unit == "Hz" and abs(passed.measured) <= passed.tolerance
     quiet = (
         silent(scenario, when, 6, site=reference.site),
         silent(scenario, when + SIDEREAL_DAY_S, 7, site=reference.site),

@@ -45,11 +45,18 @@ class _Sighting:
     unix_s: float
     label: str
     offset_hz: float
+    tolerance_hz: float
 
 
 def _sightings(context: CandidateView) -> list[_Sighting]:
     found = [
-        _Sighting(d.observation.site, d.unix_s, f"detection {d.detection.id}", d.offset_hz)
+        _Sighting(
+            d.observation.site,
+            d.unix_s,
+            f"detection {d.detection.id}",
+            d.offset_hz,
+            d.tolerance_hz,
+        )
         for d in context.target_detections()
     ]
     for view in context.reports:
@@ -60,6 +67,7 @@ def _sightings(context: CandidateView) -> list[_Sighting]:
                     view.report.unix_s,
                     f"report {view.report.id}",
                     view.report.frequency_hz - view.predicted_frequency_hz,
+                    view.frequency_tolerance_hz,
                 )
             )
     return sorted(found, key=lambda s: (s.unix_s, s.label))
@@ -83,13 +91,16 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
                 PASS,
                 f"Seen at {sighting.site.code}, {distance:.0f} km from every site that saw it "
                 f"before, {sighting.offset_hz:+.1f} Hz from the frequency predicted there.",
-                measured=distance,
-                expected=params.min_distance_km,
-                unit="km",
+                measured=sighting.offset_hz,
+                expected=0.0,
+                tolerance=sighting.tolerance_hz,
+                unit="Hz",
                 details={
                     "sighting": sighting.label,
                     "site": sighting.site.code,
                     "offset_hz": sighting.offset_hz,
+                    "distance_km": distance,
+                    "min_distance_km": params.min_distance_km,
                 },
             )
         if sighting.site not in seen_sites:

@@ -28,7 +28,7 @@ from confirm_service.protocol.results import FAIL, PASS, PENDING, CheckResult
 
 if TYPE_CHECKING:
     from confirm_service.protocol.facts import CandidateFacts, SiteFact
-    from confirm_service.protocol.matching import CandidateView
+    from confirm_service.protocol.matching import CandidateView, ObservationView, ReportView
 
 KIND = "reobservation"
 
@@ -79,28 +79,25 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
         ],
         "missed_report_ids": [v.report.id for v in reports if f"report {v.report.id}" in missed],
     }
-    sightings = [
-        (d.unix_s, d.observation.site.code, d.offset_hz) for v in present for d in v.linked[:1]
-    ] + [
-        (
-            v.report.unix_s + v.report.time_offset_s,
-            v.report.site.code,
-            (v.report.frequency_hz or 0.0) - v.predicted_frequency_hz,
-        )
-        for v in present_reports
-    ]
+    sightings = _sightings(present, present_reports)
     if sightings:
-        unix_s, site_code, offset_hz = min(sightings)
+        unix_s, site_code, offset_hz, tolerance_hz = min(sightings)
         gap_s = unix_s - reference.unix_s
         return CheckResult(
             KIND,
             PASS,
             f"Seen again at {site_code} {format_hours(gap_s)} after the reference, "
             f"{offset_hz:+.1f} Hz from the predicted frequency.",
-            measured=gap_s / 3600.0,
-            expected=params.min_gap_hours,
-            unit="h",
-            details=details | {"offset_hz": offset_hz},
+            measured=offset_hz,
+            expected=0.0,
+            tolerance=tolerance_hz,
+            unit="Hz",
+            details=details
+            | {
+                "offset_hz": offset_hz,
+                "gap_hours": gap_s / 3600.0,
+                "min_gap_hours": params.min_gap_hours,
+            },
         )
     sessions = len(misses.sessions)
     if sessions >= params.max_misses:
@@ -122,3 +119,23 @@ def evaluate(facts: CandidateFacts, params: Params, context: CandidateView) -> C
         f"{misses.summary()}",
         details=details,
     )
+
+
+def _sightings(
+    present: list[ObservationView], present_reports: list[ReportView]
+) -> list[tuple[float, str, float, float]]:
+    """(instant unix s, site code, observed minus predicted Hz, tolerance Hz) of each later
+    sighting: the best link of each scan, and each report on the track."""
+    return [
+        (d.unix_s, d.observation.site.code, d.offset_hz, d.tolerance_hz)
+        for v in present
+        for d in v.linked[:1]
+    ] + [
+        (
+            v.report.unix_s + v.report.time_offset_s,
+            v.report.site.code,
+            (v.report.frequency_hz or 0.0) - v.predicted_frequency_hz,
+            v.frequency_tolerance_hz,
+        )
+        for v in present_reports
+    ]
