@@ -49,6 +49,11 @@ def _install_sqlite_pragmas(engine: Engine) -> None:
         connection.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")
 
 
+def parameter_marker(dialect: Any) -> str:
+    """The DB-API placeholder of ``dialect``'s driver for raw statements: ``%s`` or ``?``."""
+    return "%s" if dialect.paramstyle in ("format", "pyformat") else "?"
+
+
 def make_engine(database_url: str) -> Engine:
     """Create the engine for ``database_url``; for SQLite, create the file's folder."""
     url = make_url(database_url)

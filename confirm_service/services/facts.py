@@ -16,6 +16,7 @@ from typing import Any
 from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
+from confirm_service.db import parameter_marker
 from confirm_service.models import (
     Candidate,
     Detection,
@@ -207,17 +208,17 @@ WINDOWS_PER_STATEMENT = 1_000
 """Windows per statement: three parameters each, well inside SQLite's 32,766."""
 
 
-def window_statement(count: int, dialect: str) -> str:
-    """The window query for ``count`` windows, with the driver's parameter markers."""
-    marker = "%s" if dialect == "postgresql" else "?"
-    if dialect == "postgresql":  # the first row types the VALUES columns
-        first = f"(CAST({marker} AS integer), CAST({marker} AS double precision), " + (
-            f"CAST({marker} AS double precision))"
+def window_statement(count: int, dialect: Any) -> str:
+    """The window query for ``count`` windows, with ``dialect``'s parameter markers."""
+    m = parameter_marker(dialect)
+    row = f"({m}, {m}, {m})"
+    if dialect.name == "postgresql":  # the first row types the VALUES columns
+        first = (
+            f"(CAST({m} AS integer), CAST({m} AS double precision), CAST({m} AS double precision))"
         )
     else:
-        first = f"({marker}, {marker}, {marker})"
-    rows = ", ".join([first] + [f"({marker}, {marker}, {marker})"] * (count - 1))
-    return _WINDOW_QUERY.format(rows=rows)
+        first = row
+    return _WINDOW_QUERY.format(rows=", ".join([first] + [row] * (count - 1)))
 
 
 def detections_in_windows(
@@ -235,7 +236,7 @@ def detections_in_windows(
     items = list(windows.items())
     for first in range(0, len(items), WINDOWS_PER_STATEMENT):
         chunk = items[first : first + WINDOWS_PER_STATEMENT]
-        statement = window_statement(len(chunk), connection.dialect.name)
+        statement = window_statement(len(chunk), connection.dialect)
         parameters = tuple(
             value
             for observation_id, (low, high) in chunk

@@ -14,6 +14,7 @@ from sqlalchemy.orm import Session
 from confirm_service import metrics
 from confirm_service.actor import Actor
 from confirm_service.audit.log import record
+from confirm_service.db import parameter_marker
 from confirm_service.errors import Invalid, NotFound, TooLarge
 from confirm_service.models import Detection, Observation, Site, Target
 from confirm_service.protocol.screening import Reason
@@ -101,8 +102,7 @@ def _insert_detection_rows(session: Session, rows: list[tuple[Any, ...]]) -> Non
     if connection.dialect.name == "postgresql":
         _copy_detection_rows(connection.connection.driver_connection, columns, rows)
         return
-    marker = "%s" if connection.dialect.paramstyle in ("format", "pyformat") else "?"
-    placeholders = ", ".join([marker] * len(DETECTION_COLUMNS))
+    placeholders = ", ".join([parameter_marker(connection.dialect)] * len(DETECTION_COLUMNS))
     statement = f"INSERT INTO detections ({columns}) VALUES ({placeholders})"
     connection.exec_driver_sql(statement, rows)
 

@@ -62,8 +62,8 @@ def test_sqlite_reads_each_window_through_the_frequency_index(tmp_path):
     (PostgreSQL chooses its plan from table statistics; its rows are checked above.)"""
     url = f"sqlite:///{tmp_path / 'plan.db'}"
     upgrade_database(url)
-    statement = "EXPLAIN QUERY PLAN " + window_statement(2, "sqlite")
     engine = create_engine(url)
+    statement = "EXPLAIN QUERY PLAN " + window_statement(2, engine.dialect)
     with engine.connect() as connection:
         plan = connection.exec_driver_sql(statement, (1, 1.41e9, 1.42e9, 2, 1.41e9, 1.42e9)).all()
     engine.dispose()
