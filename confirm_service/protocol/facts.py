@@ -127,6 +127,11 @@ class ReportFact:
     pointing_dec_deg: float | None = None
     time_offset_s: float = 0.0
 
+    @property
+    def sighting_unix_s(self) -> float:
+        """The instant a sighting's frequency and drift refer to (unix s)."""
+        return self.unix_s + self.time_offset_s
+
 
 @dataclass(frozen=True, slots=True)
 class SignoffFact:

@@ -64,7 +64,7 @@ def _sightings(context: CandidateView) -> list[_Sighting]:
             found.append(
                 _Sighting(
                     view.report.site,
-                    view.report.unix_s,
+                    view.report.sighting_unix_s,
                     f"report {view.report.id}",
                     view.report.frequency_hz - view.predicted_frequency_hz,
                     view.frequency_tolerance_hz,

@@ -132,7 +132,7 @@ def _sightings(
         for d in v.linked[:1]
     ] + [
         (
-            v.report.unix_s + v.report.time_offset_s,
+            v.report.sighting_unix_s,
             v.report.site.code,
             (v.report.frequency_hz or 0.0) - v.predicted_frequency_hz,
             v.frequency_tolerance_hz,
